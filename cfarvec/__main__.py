@@ -1,0 +1,3 @@
+from cfarvec.cli import main
+
+raise SystemExit(main())

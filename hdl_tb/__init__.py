@@ -1,0 +1,1 @@
+"""Reference Verilog core, testbench generator and co-simulation runner."""

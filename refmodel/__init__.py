@@ -1,0 +1,1 @@
+"""Reference models: float CFAR golden models, threshold design, bit-accurate pipeline."""

@@ -1,0 +1,479 @@
+"""The block spec: one TOML file describing one streaming CFAR block.
+
+:func:`load_spec` reads and validates a file, :func:`spec_from_dict` a
+mapping (a notebook can build one in place); both return a frozen
+:class:`BlockSpec` whose properties give every derived width and constant.
+The field-by-field reference is ``docs/block-spec.md``; the arithmetic the
+fields control is ``docs/bit-true.md``.
+
+Sections owned here: ``[detector]``, ``[fixed]``, ``[stream]``. Sections
+owned by later stages (``[vectors]``, ``[ports]``, ``[study]``) are kept as
+plain dictionaries in :attr:`BlockSpec.sections` and validated by their
+owners, so data still flows one way.
+"""
+
+from __future__ import annotations
+
+import math
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from types import MappingProxyType
+from typing import Any, Mapping
+
+from .errors import SpecError, require
+from .fixed_arith import OVERFLOW_MODES, ROUNDING_MODES, naf_digits, quantise_constant, scale_product
+
+KINDS = ("ca", "go", "so", "os")
+EDGES = ("skip", "zero-pad", "one-sided", "circular")
+COMPARES = (">", ">=")
+DOWNSTREAM_SECTIONS = ("vectors", "ports", "study")
+MAX_PRODUCT_BITS = 62
+
+_DETECTOR_KEYS = {
+    "kind": "ca",
+    "ref_cells_per_side": None,
+    "guard_cells_per_side": 0,
+    "rank": None,
+    "compare": ">",
+    "edge": "skip",
+    "alpha": None,
+    "design_pfa": None,
+}
+_FIXED_KEYS = {
+    "input_bits": 16,
+    "sum_bits": None,
+    "alpha_frac_bits": 12,
+    "alpha_csd_digits": 0,
+    "truncate_partials": False,
+    "mean_by_shift": False,
+    "threshold_frac_bits": 0,
+    "threshold_bits": None,
+    "rounding": "half-up",
+    "overflow": "saturate",
+}
+_STREAM_KEYS = {
+    "frame_length": 256,
+    "pipeline_stages": 2,
+}
+
+
+def _choices(values) -> str:
+    return ", ".join(f'"{v}"' for v in values)
+
+
+def _int(sec: str, key: str, value: Any, lo: int, hi: int | None = None) -> int:
+    allowed = f"an integer >= {lo}" if hi is None else f"an integer {lo}..{hi}"
+    require(isinstance(value, int) and not isinstance(value, bool), f"{sec}.{key}", f"got {value!r}", allowed)
+    require(value >= lo and (hi is None or value <= hi), f"{sec}.{key}", f"got {value}", allowed)
+    return value
+
+
+def _choice(sec: str, key: str, value: Any, options) -> str:
+    require(value in options, f"{sec}.{key}", f"got {value!r}", _choices(options))
+    return value
+
+
+def _bool(sec: str, key: str, value: Any) -> bool:
+    require(isinstance(value, bool), f"{sec}.{key}", f"got {value!r}", "true or false")
+    return value
+
+
+def _number(sec: str, key: str, value: Any) -> float:
+    ok = isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
+    require(ok, f"{sec}.{key}", f"got {value!r}", "a finite number")
+    return float(value)
+
+
+def _section(data: Mapping, name: str, defaults: Mapping) -> dict:
+    raw = data.get(name, {})
+    require(isinstance(raw, Mapping), name, f"got {type(raw).__name__}", "a table")
+    unknown = sorted(set(raw) - set(defaults))
+    require(not unknown, f"{name}.{unknown[0] if unknown else ''}", "unknown field", _choices(defaults))
+    return {**defaults, **raw}
+
+
+@dataclass(frozen=True)
+class BlockSpec:
+    """A validated block spec with its derived quantities.
+
+    Parameters
+    ----------
+    kind : {"ca", "go", "so", "os"}
+        Detector kind.
+    ref_per_side, guard_per_side : int
+        Reference cells ``R >= 1`` and guard cells ``G >= 0`` on each side of the CUT.
+    rank : int or None
+        OS rank ``k`` in ``1..2R`` (OS only).
+    compare : {">", ">="}
+        Decision comparison of the CUT against the threshold.
+    edge : {"skip", "zero-pad", "one-sided", "circular"}
+        Edge policy.
+    alpha : float
+        Threshold factor (given, or derived from ``design_pfa``).
+    design_pfa : float or None
+        The false-alarm probability the design was made for, when given.
+    input_bits, sum_bits, alpha_frac_bits, alpha_csd_digits, threshold_frac_bits, threshold_bits : int
+        Formats (see ``docs/block-spec.md``); ``sum_bits`` and ``threshold_bits``
+        are already resolved from their automatic defaults.
+    truncate_partials, mean_by_shift : bool
+        Multiplier options.
+    rounding : {"floor", "half-up", "half-even"}
+    overflow : {"saturate", "wrap"}
+    frame_length : int
+        Default frame length for generated stimulus (frames in a stream may differ).
+    pipeline_stages : int
+        Register stages between the window centre and the output word.
+    sections : mapping
+        Raw downstream sections (``vectors``, ``ports``, ``study``).
+    source : str or None
+        Path the spec was read from.
+    """
+
+    kind: str
+    ref_per_side: int
+    guard_per_side: int
+    rank: int | None
+    compare: str
+    edge: str
+    alpha: float
+    design_pfa: float | None
+    input_bits: int
+    sum_bits: int
+    alpha_frac_bits: int
+    alpha_csd_digits: int
+    truncate_partials: bool
+    mean_by_shift: bool
+    threshold_frac_bits: int
+    threshold_bits: int
+    rounding: str
+    overflow: str
+    frame_length: int
+    pipeline_stages: int
+    sections: Mapping[str, Any] = field(default_factory=dict, compare=False)
+    source: str | None = field(default=None, compare=False)
+
+    # ---- geometry -------------------------------------------------------
+    @property
+    def window_length(self) -> int:
+        """Cells in the window, ``2R + 2G + 1``."""
+        return 2 * self.ref_per_side + 2 * self.guard_per_side + 1
+
+    @property
+    def half_window(self) -> int:
+        """``R + G``: cells from the CUT to either end of the window."""
+        return self.ref_per_side + self.guard_per_side
+
+    @property
+    def n_ref(self) -> int:
+        """Total reference cells ``N = 2R``."""
+        return 2 * self.ref_per_side
+
+    @property
+    def mean_divisor(self) -> int:
+        """What the noise statistic is divided by to form the estimate alpha multiplies.
+
+        ``2R`` for CA (sum of both sides), ``R`` for GO/SO (one side's sum), 1 for OS.
+        """
+        return {"ca": 2 * self.ref_per_side, "go": self.ref_per_side, "so": self.ref_per_side}.get(self.kind, 1)
+
+    @property
+    def os_side_rank(self) -> int | None:
+        """OS rank used on a single side under the one-sided policy: ``ceil(k / 2)``."""
+        return None if self.rank is None else (self.rank + 1) // 2
+
+    # ---- widths ---------------------------------------------------------
+    @property
+    def side_sum_bits(self) -> int:
+        """Bits that hold one side's sum without loss: ``bitlen(R * (2**W_in - 1))``."""
+        return (self.ref_per_side * ((1 << self.input_bits) - 1)).bit_length()
+
+    @property
+    def statistic_bits(self) -> int:
+        """Width of the noise statistic S fed to the multiplier."""
+        if self.kind == "ca":
+            return self.sum_bits + 1
+        if self.kind in ("go", "so"):
+            return self.sum_bits
+        return self.input_bits
+
+    @property
+    def statistic_max(self) -> int:
+        """Largest value S can take (full-scale input everywhere)."""
+        full = (1 << self.input_bits) - 1
+        if self.kind == "ca":
+            return 2 * self.ref_per_side * full
+        if self.kind in ("go", "so"):
+            return self.ref_per_side * full
+        return full
+
+    @property
+    def mean_shift(self) -> int:
+        """Right shift ``s`` that forms the mean when ``mean_by_shift`` is set, else 0."""
+        return int(math.log2(self.mean_divisor)) if self.mean_by_shift else 0
+
+    @property
+    def alpha_target(self) -> float:
+        """The exact scaled constant before quantisation: ``alpha * 2**(F_A + s) / divisor``."""
+        return self.alpha * 2.0 ** (self.alpha_frac_bits + self.mean_shift) / self.mean_divisor
+
+    @property
+    def alpha_int(self) -> int:
+        """The quantised constant A (an unsigned integer with ``alpha_frac_bits`` fraction bits)."""
+        return quantise_constant(self.alpha_target, self.alpha_csd_digits)
+
+    @property
+    def alpha_digits(self) -> list[tuple[int, int]]:
+        """A as signed power-of-two terms ``[(sign, power), ...]`` (its NAF)."""
+        return naf_digits(self.alpha_int)
+
+    @property
+    def alpha_bits(self) -> int:
+        """Width of A."""
+        return self.alpha_int.bit_length()
+
+    @property
+    def product_frac_bits(self) -> int:
+        """Fraction bits of the full product ``S * A``: ``F_A + s``."""
+        return self.alpha_frac_bits + self.mean_shift
+
+    @property
+    def drop_bits(self) -> int:
+        """Fraction bits dropped when the product is rounded to the threshold: ``d = F_P - F_T``."""
+        return self.product_frac_bits - self.threshold_frac_bits
+
+    @property
+    def product_bits(self) -> int:
+        """Width of the full product ``S * A``."""
+        return self.statistic_bits + self.alpha_bits
+
+    @property
+    def realised_alpha(self) -> float:
+        """The threshold factor the quantised constant realises: ``A * divisor / 2**(F_A + s)``."""
+        return self.alpha_int * self.mean_divisor / 2.0 ** self.product_frac_bits
+
+    @property
+    def output_bits(self) -> int:
+        """Width of one output word: CUT, threshold, detection, window-valid, last."""
+        return self.input_bits + self.threshold_bits + 3
+
+    @property
+    def input_word_bits(self) -> int:
+        """Width of one stimulus word: sample plus the last marker."""
+        return self.input_bits + 1
+
+    # ---- timing ---------------------------------------------------------
+    @property
+    def drain_cycles(self) -> int:
+        """Idle input cycles after each frame's last sample (``R + G``; circular: see docs)."""
+        return self.half_window
+
+    @property
+    def latency_cycles(self) -> int:
+        """Cycles from a sample entering to its own output word leaving (non-circular policies).
+
+        ``R + G`` cycles for the leading half of the window to arrive, plus
+        ``pipeline_stages``. Under ``circular`` the whole frame is stored first;
+        see ``docs/bit-true.md``.
+        """
+        if self.edge == "circular":
+            return self.frame_length + 2 * self.half_window + self.pipeline_stages
+        return self.half_window + self.pipeline_stages
+
+    # ---- arithmetic helpers -------------------------------------------
+    def threshold_from_statistic(self, s):
+        """Threshold word(s) from the noise statistic(s): product, rounding, overflow.
+
+        See ``docs/bit-true.md`` steps 5 and 6.
+        """
+        from .fixed_arith import apply_overflow
+
+        t = scale_product(s, self.alpha_int, self.drop_bits, self.rounding, self.truncate_partials)
+        return apply_overflow(t, self.threshold_bits, self.overflow)
+
+    def threshold_error_bound(self, s):
+        """Bound on ``|T_fixed / 2**F_T - alpha * S / divisor|`` in input LSBs, where nothing saturates.
+
+        Notes
+        -----
+        Two terms add: the constant's quantisation error scaled by the
+        statistic, ``S * |A - A_exact| / 2**F_P``, and the rounding of the
+        product, at most one threshold LSB ``2**-F_T`` for ``floor`` (the
+        error lies in ``(-1, 0]`` LSB), half an LSB for ``half-up`` and
+        ``half-even``, and one LSB per truncated partial product when
+        ``truncate_partials`` is set. A tiny float allowance covers the
+        double-precision evaluation of ``alpha``.
+        """
+        lsb = 2.0 ** -self.threshold_frac_bits
+        if self.truncate_partials:
+            r = len(self.alpha_digits) * lsb
+        elif self.rounding == "floor":
+            r = lsb
+        else:
+            r = 0.5 * lsb
+        da = abs(self.alpha_int - self.alpha_target) / 2.0 ** self.product_frac_bits
+        return s * da + r + 1e-9 * (1.0 + s)
+
+    def to_dict(self) -> dict:
+        """The spec as plain TOML-able sections (resolved values, downstream sections included)."""
+        det = {
+            "kind": self.kind,
+            "ref_cells_per_side": self.ref_per_side,
+            "guard_cells_per_side": self.guard_per_side,
+            "compare": self.compare,
+            "edge": self.edge,
+            "alpha": self.alpha,
+        }
+        if self.rank is not None:
+            det["rank"] = self.rank
+        if self.design_pfa is not None:
+            det["design_pfa"] = self.design_pfa
+        fixed = {k: getattr(self, k) for k in _FIXED_KEYS}
+        stream = {k: getattr(self, k) for k in _STREAM_KEYS}
+        return {"detector": det, "fixed": fixed, "stream": stream, **{k: dict(v) for k, v in self.sections.items()}}
+
+    def derived(self) -> dict:
+        """Derived widths and constants, for reports and manifests."""
+        return {
+            "window_length": self.window_length,
+            "side_sum_bits": self.side_sum_bits,
+            "statistic_bits": self.statistic_bits,
+            "alpha_int": self.alpha_int,
+            "alpha_bits": self.alpha_bits,
+            "alpha_digits": len(self.alpha_digits),
+            "mean_shift": self.mean_shift,
+            "product_bits": self.product_bits,
+            "drop_bits": self.drop_bits,
+            "threshold_bits": self.threshold_bits,
+            "realised_alpha": self.realised_alpha,
+            "output_bits": self.output_bits,
+            "latency_cycles": self.latency_cycles,
+            "drain_cycles": self.drain_cycles,
+        }
+
+
+def spec_from_dict(data: Mapping[str, Any], source: str | None = None) -> BlockSpec:
+    """Validate a spec mapping (the parsed TOML) and resolve its defaults.
+
+    Raises
+    ------
+    SpecError
+        Naming the first offending field (``section.key``) and its allowed values.
+    """
+    known = ("detector", "fixed", "stream") + DOWNSTREAM_SECTIONS
+    for name in data:
+        require(name in known, name, "unknown section", _choices(known))
+    det = _section(data, "detector", _DETECTOR_KEYS)
+    fx = _section(data, "fixed", _FIXED_KEYS)
+    st = _section(data, "stream", _STREAM_KEYS)
+
+    kind = _choice("detector", "kind", det["kind"], KINDS)
+    require(det["ref_cells_per_side"] is not None, "detector.ref_cells_per_side", "missing", "an integer >= 1")
+    r = _int("detector", "ref_cells_per_side", det["ref_cells_per_side"], 1, 4096)
+    g = _int("detector", "guard_cells_per_side", det["guard_cells_per_side"], 0, 4096)
+    rank = det["rank"]
+    if kind == "os":
+        require(rank is not None, "detector.rank", "missing for kind \"os\"", f"an integer 1..{2 * r}")
+        rank = _int("detector", "rank", rank, 1, 2 * r)
+    else:
+        require(rank is None, "detector.rank", f"given for kind \"{kind}\"", "only with kind \"os\"")
+    compare = _choice("detector", "compare", det["compare"], COMPARES)
+    edge = _choice("detector", "edge", det["edge"], EDGES)
+
+    alpha, pfa = det["alpha"], det["design_pfa"]
+    require((alpha is None) != (pfa is None), "detector.alpha", "give exactly one of alpha and design_pfa",
+            "alpha > 0 or design_pfa in (0, 1)")
+    if pfa is not None:
+        pfa = _number("detector", "design_pfa", pfa)
+        require(0.0 < pfa < 1.0, "detector.design_pfa", f"got {pfa}", "a number in (0, 1)")
+        from .threshold_design import alpha_from_pfa
+
+        alpha = alpha_from_pfa(kind, 2 * r, pfa, rank)
+    else:
+        alpha = _number("detector", "alpha", alpha)
+        require(alpha > 0.0, "detector.alpha", f"got {alpha}", "a finite number > 0")
+
+    w_in = _int("fixed", "input_bits", fx["input_bits"], 1, 32)
+    side_bits = (r * ((1 << w_in) - 1)).bit_length()
+    sum_bits = fx["sum_bits"]
+    if sum_bits is None:
+        sum_bits = side_bits
+    else:
+        sum_bits = _int("fixed", "sum_bits", sum_bits, 1, 64)
+        require(sum_bits >= side_bits, "fixed.sum_bits",
+                f"got {sum_bits}, but one side's running sum reaches R*(2^input_bits-1) = "
+                f"{r * ((1 << w_in) - 1)}, which needs {side_bits} bits (a narrower modular sum "
+                f"loses the total for good)", f"an integer >= {side_bits}")
+    f_a = _int("fixed", "alpha_frac_bits", fx["alpha_frac_bits"], 0, 40)
+    csd = _int("fixed", "alpha_csd_digits", fx["alpha_csd_digits"], 0, 16)
+    trunc = _bool("fixed", "truncate_partials", fx["truncate_partials"])
+    by_shift = _bool("fixed", "mean_by_shift", fx["mean_by_shift"])
+    f_t = _int("fixed", "threshold_frac_bits", fx["threshold_frac_bits"], 0, 40)
+    rounding = _choice("fixed", "rounding", fx["rounding"], ROUNDING_MODES)
+    overflow = _choice("fixed", "overflow", fx["overflow"], OVERFLOW_MODES)
+    require(not trunc or rounding == "floor", "fixed.rounding",
+            f"got {rounding!r} with truncate_partials = true", '"floor" (truncated partial products floor each term)')
+    if by_shift:
+        div = {"ca": 2 * r, "go": r, "so": r}.get(kind)
+        require(div is not None and div & (div - 1) == 0, "fixed.mean_by_shift",
+                f"true, but the mean divisor is {div if div else 'not used by os'}",
+                "true only when the divisor (2R for ca, R for go/so) is a power of two")
+    frame = _int("stream", "frame_length", st["frame_length"], 2 * r + 2 * g + 1, 1 << 24)
+    stages = _int("stream", "pipeline_stages", st["pipeline_stages"], 1, 16)
+
+    sections = {}
+    for name in DOWNSTREAM_SECTIONS:
+        if name in data:
+            require(isinstance(data[name], Mapping), name, f"got {type(data[name]).__name__}", "a table")
+            sections[name] = dict(data[name])
+
+    spec = BlockSpec(
+        kind=kind, ref_per_side=r, guard_per_side=g, rank=rank, compare=compare, edge=edge,
+        alpha=alpha, design_pfa=pfa, input_bits=w_in, sum_bits=sum_bits, alpha_frac_bits=f_a,
+        alpha_csd_digits=csd, truncate_partials=trunc, mean_by_shift=by_shift,
+        threshold_frac_bits=f_t, threshold_bits=1, rounding=rounding, overflow=overflow,
+        frame_length=frame, pipeline_stages=stages, sections=MappingProxyType(sections), source=source,
+    )
+    require(spec.alpha_int >= 1, "fixed.alpha_frac_bits",
+            f"got {f_a}: alpha * 2^F / divisor = {spec.alpha_target:.4g} quantises to 0",
+            "more fraction bits (or a larger alpha)")
+    require(f_t <= spec.product_frac_bits, "fixed.threshold_frac_bits", f"got {f_t}",
+            f"an integer 0..{spec.product_frac_bits} (the product's fraction bits)")
+    require(spec.product_bits <= MAX_PRODUCT_BITS, "fixed.alpha_frac_bits",
+            f"product S*A would be {spec.product_bits} bits", f"a format whose product fits {MAX_PRODUCT_BITS} bits")
+    # Automatic threshold width: enough for the largest threshold, so nothing saturates.
+    if trunc:
+        pos = sum(1 << p for sgn, p in spec.alpha_digits if sgn > 0)
+        t_max = (spec.statistic_max * pos) >> spec.drop_bits
+    else:
+        t_max = scale_product(spec.statistic_max, spec.alpha_int, spec.drop_bits, rounding)
+    auto_t = max(1, int(t_max).bit_length())
+    w_t = fx["threshold_bits"]
+    w_t = auto_t if w_t is None else _int("fixed", "threshold_bits", w_t, 1, 62)
+    return _replace_threshold_bits(spec, w_t)
+
+
+def _replace_threshold_bits(spec: BlockSpec, w_t: int) -> BlockSpec:
+    from dataclasses import replace
+
+    return replace(spec, threshold_bits=w_t)
+
+
+def load_spec(path: str | Path) -> BlockSpec:
+    """Read and validate a block-spec TOML file.
+
+    Raises
+    ------
+    SpecError
+        For a missing file, bad TOML, or any invalid field.
+    """
+    p = Path(path)
+    try:
+        text = p.read_text(encoding="utf-8")
+    except OSError as exc:
+        raise SpecError("SPEC", f"cannot read {str(p)!r} ({exc.strerror})", "a readable TOML file") from None
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise SpecError("SPEC", f"{p.name} is not valid TOML ({exc})", "a TOML file") from None
+    return spec_from_dict(data, source=str(p))

@@ -1,0 +1,1 @@
+"""Golden vector sets: stimulus, expected outputs, file writers, manifests, checker."""
