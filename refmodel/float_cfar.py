@@ -125,8 +125,8 @@ def _check_samples(field: str, x: object, min_ndim: int) -> np.ndarray:
     return a
 
 
-def _decide(x: np.ndarray, estimate: np.ndarray, alpha: float, compare: str, decided: np.ndarray) -> CfarResult:
-    """Threshold, compare and mask; ``decided`` is False where there is no decision."""
+def _decide(x: np.ndarray, estimate: np.ndarray, alpha: float, compare: str, decided: np.ndarray):
+    """Return ``(estimate, threshold, detections)``; NaN/False where ``decided`` is False."""
     estimate = np.where(decided, estimate, np.nan)
     threshold = alpha * estimate
     det = (x > threshold) if compare == ">" else (x >= threshold)
@@ -206,8 +206,8 @@ def cfar_1d(
     ``ceil(k / 2)`` among that side's ``R`` cells (common practice, no
     source).
 
-    On independent, identically distributed exponential noise (Swerling-free
-    square-law noise of unit mean) the full-window false-alarm probabilities
+    On independent, identically distributed exponential samples (noise only,
+    square-law detected complex Gaussian noise) the full-window false-alarm probabilities
     are, with ``N = 2R``: CA ``Pfa = (1 + alpha/N)**(-N)`` [1]_, [2]_;
     OS ``Pfa = prod_{i=0}^{k-1} (N - i) / (N - i + alpha)`` [5]_.
 
