@@ -1,0 +1,890 @@
+"""Threshold design for CFAR detectors from published detection statistics.
+
+Model: square-law detector, independent identically distributed noise cells
+with an exponential power distribution of unit mean (Rayleigh envelope).
+The cell under test (CUT) is declared a detection when its power exceeds
+``alpha * Z``, where ``Z`` is the noise estimate formed from ``N`` reference
+cells (``N/2`` on each side of the guard cells around the CUT):
+
+=======  ===================================================================
+kind     noise estimate ``Z`` that the threshold factor (alpha) multiplies
+=======  ===================================================================
+``ca``   mean of all ``N`` reference cells
+``go``   the greater of (mean of the lagging half, mean of the leading half)
+``so``   the smaller of (mean of the lagging half, mean of the leading half)
+``os``   the ``rank``-th smallest of the ``N`` reference cells (rank 1..N)
+=======  ===================================================================
+
+Functions here map alpha to the false-alarm probability (Pfa) and back, give
+the detection probability (Pd) for Swerling 0 (non-fluctuating) and Swerling I
+targets, the same for the ideal fixed-threshold detector that knows the noise
+power, the signal-to-noise ratio (SNR) needed for a given Pd, and the CFAR
+loss. The formulas, their sources and the numerical methods are written out
+in ``docs/theory.md``.
+
+All SNRs are per-cell power ratios (signal power over mean noise power) and
+are passed in dB. Bad input raises :class:`refmodel.errors.SpecError` with the
+command-line option name as the field (``"--pfa"``, ``"--ref-cells"``, ...).
+
+References
+----------
+.. [1] H. M. Finn and R. S. Johnson, "Adaptive detection mode with threshold
+   control as a function of spatially sampled clutter-level estimates,"
+   RCA Review, vol. 29, no. 3, pp. 414-464, 1968.
+.. [2] M. A. Richards, *Fundamentals of Radar Signal Processing*, McGraw-Hill,
+   2005, ch. 6 (detection fundamentals) and ch. 7 (constant false alarm rate
+   detectors).
+.. [3] V. G. Hansen and J. H. Sawyers, "Detectability loss due to greatest
+   of selection in a cell-averaging CFAR," IEEE Trans. Aerospace and
+   Electronic Systems, vol. AES-16, no. 1, pp. 115-118, 1980.
+.. [4] M. Weiss, "Analysis of some modified cell-averaging CFAR processors in
+   multiple-target situations," IEEE Trans. Aerospace and Electronic
+   Systems, vol. AES-18, no. 1, pp. 102-114, 1982.
+.. [5] P. P. Gandhi and S. A. Kassam, "Analysis of CFAR processors in
+   nonhomogeneous background," IEEE Trans. Aerospace and Electronic
+   Systems, vol. AES-24, no. 4, pp. 427-445, 1988.
+.. [6] H. Rohling, "Radar CFAR thresholding in clutter and multiple target
+   situations," IEEE Trans. Aerospace and Electronic Systems, vol. AES-19,
+   no. 4, pp. 608-621, 1983.
+.. [7] J. I. Marcum, "A statistical theory of target detection by pulsed
+   radar," IRE Trans. Information Theory, vol. IT-6, no. 2, pp. 59-267, 1960.
+.. [8] P. Swerling, "Probability of detection for fluctuating targets," IRE
+   Trans. Information Theory, vol. IT-6, no. 2, pp. 269-308, 1960.
+.. [9] H. A. David and H. N. Nagaraja, *Order Statistics*, 3rd ed., Wiley,
+   2003, sec. 2.1 (distribution of a single order statistic).
+"""
+
+from __future__ import annotations
+
+import math
+import operator
+from dataclasses import dataclass, field
+from typing import Iterable
+
+import numpy as np
+from scipy import integrate, optimize, special, stats
+
+from .errors import SpecError
+
+__all__ = [
+    "KINDS",
+    "Design",
+    "alpha_from_pfa",
+    "cfar_loss_db",
+    "design",
+    "ideal_pd",
+    "ideal_required_snr_db",
+    "noise_estimate_cdf",
+    "pd",
+    "pfa_from_alpha",
+    "required_snr_db",
+    "threshold_rule",
+]
+
+#: Detector kinds, in the order the command line lists them.
+KINDS = ("ca", "go", "so", "os")
+
+#: Largest total number of reference cells accepted (keeps every computation bounded).
+MAX_REF_CELLS = 1_000_000
+
+# OS Pfa: exact product of log1p terms up to this rank, gamma-function form above.
+_OS_PRODUCT_MAX_RANK = 100_000
+
+# Tail mass of the CUT power left out of the Swerling 0 integral: P(X > x_hi) <= exp(-_TAIL_R).
+_TAIL_R = 42.0
+
+# Integration tolerances of the Swerling 0 Pd (absolute, relative).
+_QUAD_EPSABS = 1e-13
+_QUAD_EPSREL = 1e-10
+
+# SNR search range for required_snr_db, in dB (widened step by step up to these limits).
+_SNR_DB_LIMITS = (-200.0, 300.0)
+
+
+# --------------------------------------------------------------------------
+# Validation
+# --------------------------------------------------------------------------
+
+
+def _check_kind(kind: str) -> str:
+    if not isinstance(kind, str) or kind.lower() not in KINDS:
+        raise SpecError("--detector", f"got {kind!r}", "one of " + ", ".join(KINDS))
+    return kind.lower()
+
+
+def _check_int(value, name: str, allowed: str) -> int:
+    if isinstance(value, bool):
+        raise SpecError(name, f"got {value!r}", allowed)
+    try:
+        return operator.index(value)
+    except TypeError:
+        raise SpecError(name, f"got {value!r}", allowed) from None
+
+
+def _check_real(value, name: str, allowed: str) -> float:
+    if isinstance(value, bool):
+        raise SpecError(name, f"got {value!r}", allowed)
+    try:
+        x = float(value)
+    except (TypeError, ValueError):
+        raise SpecError(name, f"got {value!r}", allowed) from None
+    if not math.isfinite(x):
+        raise SpecError(name, f"got {value!r}", allowed)
+    return x
+
+
+def _check_geometry(kind: str, n_ref, rank) -> tuple[str, int, int | None]:
+    """Validate detector kind, total reference cells and OS rank."""
+    kind = _check_kind(kind)
+    allowed_n = f"an integer 1..{MAX_REF_CELLS}"
+    if kind in ("go", "so"):
+        allowed_n = f"an even integer 2..{MAX_REF_CELLS} (N/2 cells per side)"
+    n = _check_int(n_ref, "--ref-cells", allowed_n)
+    if not 1 <= n <= MAX_REF_CELLS:
+        raise SpecError("--ref-cells", f"got {n}", allowed_n)
+    if kind in ("go", "so") and n % 2:
+        raise SpecError("--ref-cells", f"got odd {n} for detector {kind}", allowed_n)
+    if kind == "os":
+        allowed_k = f"an integer 1..{n} (1..--ref-cells)"
+        if rank is None:
+            raise SpecError("--rank", "missing for detector os", allowed_k)
+        k = _check_int(rank, "--rank", allowed_k)
+        if not 1 <= k <= n:
+            raise SpecError("--rank", f"got {k}", allowed_k)
+        return kind, n, k
+    if rank is not None:
+        raise SpecError("--rank", f"given for detector {kind}", "only with detector os")
+    return kind, n, None
+
+
+def _check_alpha(alpha) -> float:
+    a = _check_real(alpha, "--alpha", "a finite number > 0")
+    if not a > 0.0:
+        raise SpecError("--alpha", f"got {alpha!r}", "a finite number > 0")
+    return a
+
+
+def _check_pfa(pfa) -> float:
+    p = _check_real(pfa, "--pfa", "a number in (0, 1)")
+    if not 0.0 < p < 1.0:
+        raise SpecError("--pfa", f"got {pfa!r}", "a number in (0, 1)")
+    return p
+
+
+def _check_swerling(swerling) -> int:
+    if swerling in (0, 1) and not isinstance(swerling, (bool, float)):
+        return int(swerling)
+    if isinstance(swerling, str) and swerling.strip() in ("0", "1"):
+        return int(swerling)
+    raise SpecError("--swerling", f"got {swerling!r}", "0 or 1")
+
+
+def _check_snr_db(snr_db) -> float:
+    return _check_real(snr_db, "--snr-db", "a finite number of dB")
+
+
+def _check_pd(pd_target, pfa: float) -> float:
+    allowed = f"a number in (Pfa, 1) = ({pfa:.6g}, 1)"
+    p = _check_real(pd_target, "--pd", allowed)
+    if not pfa < p < 1.0:
+        raise SpecError("--pd", f"got {pd_target!r}", allowed)
+    return p
+
+
+# --------------------------------------------------------------------------
+# False-alarm probability
+# --------------------------------------------------------------------------
+
+
+def _log_pfa(kind: str, n: int, alpha: float, rank: int | None) -> float:
+    """Natural log of Pfa for already-validated arguments (alpha >= 0)."""
+    if kind == "ca":
+        # Pfa = (1 + alpha/N)^(-N)  [1], [2]
+        return -n * math.log1p(alpha / n)
+    if kind in ("go", "so"):
+        h = n // 2
+        t = alpha / h  # multiplier of the per-side sum
+        # SO: 2 (1+T)^-n I_{(1+T)/(2+T)}(n, n); GO: 2 (1+T)^-n I_{1/(2+T)}(n, n).
+        # Same as the finite sums of [4], [5] (docs/theory.md, eqs. (5)-(8)).
+        x = 1.0 / (2.0 + t) if kind == "go" else (1.0 + t) / (2.0 + t)
+        reg = special.betainc(h, h, x)
+        if reg <= 0.0:
+            return -math.inf
+        return math.log(2.0) - h * math.log1p(t) + math.log(reg)
+    # OS: Pfa = prod_{i=0}^{k-1} (N-i) / (N-i+alpha)  [6]
+    k = rank
+    if k <= _OS_PRODUCT_MAX_RANK:
+        m = n - np.arange(k, dtype=float)
+        return -float(np.sum(np.log1p(alpha / m)))
+    # Same, as Gamma functions: Gamma(N+1) Gamma(N-k+1+alpha) / (Gamma(N-k+1) Gamma(N+1+alpha))
+    return float(
+        special.gammaln(n + 1.0)
+        - special.gammaln(n - k + 1.0)
+        + special.gammaln(n - k + 1.0 + alpha)
+        - special.gammaln(n + 1.0 + alpha)
+    )
+
+
+def pfa_from_alpha(kind: str, n_ref: int, alpha: float, rank: int | None = None) -> float:
+    """False-alarm probability of a CFAR detector for a given threshold factor.
+
+    Parameters
+    ----------
+    kind : {"ca", "go", "so", "os"}
+        Detector: cell averaging, greatest-of, smallest-of, ordered statistic.
+    n_ref : int
+        Total number of reference cells N (both sides together; even for
+        ``go`` and ``so``, which use N/2 per side).
+    alpha : float
+        Threshold factor (alpha), finite and > 0. The threshold is
+        ``alpha * Z`` with ``Z`` as listed in the module docstring.
+    rank : int, optional
+        Rank k (1..N) of the order statistic; required for ``os`` only.
+
+    Returns
+    -------
+    float
+        Pfa in (0, 1); may underflow to 0.0 for astronomically large alpha.
+
+    Notes
+    -----
+    Closed forms, with noise power exponential of unit mean in every cell:
+
+    * CA: ``(1 + alpha/N)^(-N)`` [1]_, [2]_.
+    * SO: ``2 (2+T)^(-n) sum_{j=0}^{n-1} C(n-1+j, j) (2+T)^(-j)`` with
+      ``n = N/2`` and ``T = alpha/n`` [4]_, [5]_; GO: ``2 (1+T)^(-n) - Pfa_SO``
+      [3]_, [5]_. Evaluated as the equal regularized incomplete beta forms
+      ``2 (1+T)^(-n) I_x(n, n)`` with ``x = (1+T)/(2+T)`` (SO) or
+      ``x = 1/(2+T)`` (GO), which avoid cancellation at small Pfa.
+    * OS: ``prod_{i=0}^{k-1} (N-i)/(N-i+alpha)`` [6]_, summed as logs with
+      ``log1p`` (exact to rounding) up to rank 100000; above that as the
+      equal Gamma-function form ``Gamma(N+1) Gamma(N-k+1+alpha) /
+      (Gamma(N-k+1) Gamma(N+1+alpha))`` with ``gammaln`` (relative error
+      about ``eps * ln Gamma(N)``, ~1e-9 at N = 1e6).
+
+    References
+    ----------
+    .. [1] Finn & Johnson, RCA Review 29(3), 1968.
+    .. [2] Richards, Fundamentals of Radar Signal Processing, 2005, ch. 7.
+    .. [3] Hansen & Sawyers, IEEE Trans. AES-16(1), 1980.
+    .. [4] Weiss, IEEE Trans. AES-18(1), 1982.
+    .. [5] Gandhi & Kassam, IEEE Trans. AES-24(4), 1988.
+    .. [6] Rohling, IEEE Trans. AES-19(4), 1983.
+    """
+    kind, n, k = _check_geometry(kind, n_ref, rank)
+    a = _check_alpha(alpha)
+    return math.exp(_log_pfa(kind, n, a, k))
+
+
+def alpha_from_pfa(kind: str, n_ref: int, pfa: float, rank: int | None = None) -> float:
+    """Threshold factor (alpha) that gives a wanted false-alarm probability.
+
+    Parameters
+    ----------
+    kind : {"ca", "go", "so", "os"}
+        Detector kind.
+    n_ref : int
+        Total number of reference cells N.
+    pfa : float
+        Wanted Pfa, in (0, 1).
+    rank : int, optional
+        Rank k (1..N), ``os`` only.
+
+    Returns
+    -------
+    float
+        alpha > 0 with ``pfa_from_alpha(kind, n_ref, alpha, rank) == pfa``.
+
+    Notes
+    -----
+    CA has the closed form ``alpha = N (Pfa^(-1/N) - 1)`` [1]_, evaluated as
+    ``N expm1(-ln(Pfa)/N)``. GO, SO and OS invert the Pfa expression of
+    :func:`pfa_from_alpha`, which decreases strictly in alpha from 1 at
+    alpha = 0 towards 0, by Brent's method on ``ln Pfa(e^u) - ln Pfa`` in
+    ``u = ln(alpha)`` (scipy.optimize.brentq [2]_, tolerance 1e-15 in u,
+    i.e. about 1e-15 relative in alpha).
+
+    References
+    ----------
+    .. [1] Richards, Fundamentals of Radar Signal Processing, 2005, ch. 7.
+    .. [2] R. P. Brent, *Algorithms for Minimization without Derivatives*,
+       Prentice-Hall, 1973, ch. 4.
+    """
+    kind, n, k = _check_geometry(kind, n_ref, rank)
+    p = _check_pfa(pfa)
+    return _alpha_from_pfa(kind, n, p, k)
+
+
+def _alpha_from_pfa(kind: str, n: int, pfa: float, k: int | None) -> float:
+    target = math.log(pfa)
+    if kind == "ca":
+        return n * math.expm1(-target / n)
+
+    # Solve in u = ln(alpha): one bracket search covers every magnitude of alpha.
+    def f(u: float) -> float:
+        return _log_pfa(kind, n, math.exp(u), k) - target
+
+    lo, hi = -1.0, 1.0
+    while f(lo) <= 0.0:
+        lo -= 8.0  # ln Pfa -> 0 > target as alpha -> 0, so this ends
+    while f(hi) >= 0.0:
+        hi += 8.0
+        if hi > 709.0:
+            raise SpecError("--pfa", f"got {pfa!r}, alpha would exceed the double range", "a larger Pfa")
+    u = optimize.brentq(f, lo, hi, xtol=1e-15, rtol=4 * np.finfo(float).eps, maxiter=500)
+    return math.exp(u)
+
+
+def threshold_rule(kind: str, n_ref: int, rank: int | None = None) -> str:
+    """One-line description of what alpha multiplies, e.g. for reports.
+
+    Parameters
+    ----------
+    kind : {"ca", "go", "so", "os"}
+        Detector kind.
+    n_ref : int
+        Total number of reference cells N.
+    rank : int, optional
+        Rank k, ``os`` only.
+
+    Returns
+    -------
+    str
+        E.g. ``"alpha * mean of all 32 reference cells"``.
+    """
+    kind, n, k = _check_geometry(kind, n_ref, rank)
+    if kind == "ca":
+        return f"alpha * mean of all {n} reference cells"
+    if kind == "go":
+        return f"alpha * max(mean of {n // 2} lagging cells, mean of {n // 2} leading cells)"
+    if kind == "so":
+        return f"alpha * min(mean of {n // 2} lagging cells, mean of {n // 2} leading cells)"
+    return f"alpha * rank-{k} (k-th smallest) of {n} reference cells"
+
+
+# --------------------------------------------------------------------------
+# Noise estimate distribution
+# --------------------------------------------------------------------------
+
+
+def _estimate_cdf(kind: str, n: int, k: int | None, z):
+    """P(Z <= z) for the normalized noise estimate Z (vectorized, z >= 0)."""
+    z = np.maximum(np.asarray(z, dtype=float), 0.0)
+    if kind == "ca":
+        return special.gammainc(n, n * z)
+    if kind in ("go", "so"):
+        h = n // 2
+        if kind == "go":
+            return special.gammainc(h, h * z) ** 2
+        # 1 - (1 - P)^2 = P (1 + Q), P + Q = 1: no cancellation for small P
+        return special.gammainc(h, h * z) * (1.0 + special.gammaincc(h, h * z))
+    # k-th smallest of N unit exponentials: U_(k) = 1 - exp(-Z) is Beta(k, N-k+1)  [9]
+    return special.betainc(k, n - k + 1, -np.expm1(-z))
+
+
+def _estimate_ppf(kind: str, n: int, k: int | None, q):
+    """Inverse of :func:`_estimate_cdf` (vectorized, 0 < q < 1)."""
+    q = np.asarray(q, dtype=float)
+    if kind == "ca":
+        return special.gammaincinv(n, q) / n
+    if kind in ("go", "so"):
+        h = n // 2
+        side_q = np.sqrt(q) if kind == "go" else -np.expm1(0.5 * np.log1p(-q))
+        return special.gammaincinv(h, side_q) / h
+    return -np.log1p(-special.betaincinv(k, n - k + 1, q))
+
+
+def noise_estimate_cdf(kind: str, n_ref: int, z: float, rank: int | None = None) -> float:
+    """Cumulative distribution of the noise estimate that alpha multiplies.
+
+    Parameters
+    ----------
+    kind : {"ca", "go", "so", "os"}
+        Detector kind.
+    n_ref : int
+        Total number of reference cells N.
+    z : float
+        Level, in units of the mean noise power per cell.
+    rank : int, optional
+        Rank k, ``os`` only.
+
+    Returns
+    -------
+    float
+        ``P(Z <= z)`` for noise-only reference cells.
+
+    Notes
+    -----
+    With ``G(n, x) = P(n, n x)`` the regularized lower incomplete gamma
+    function (CDF of the mean of n unit exponentials):
+
+    * CA: ``G(N, z)``.
+    * GO: ``G(n, z)^2``; SO: ``1 - (1 - G(n, z))^2``, n = N/2 (the two
+      half-window means are independent) [1]_.
+    * OS: ``I_{1-exp(-z)}(k, N-k+1)``, the regularized incomplete beta
+      function: the k-th smallest of N uniforms is Beta(k, N-k+1) [1]_.
+
+    References
+    ----------
+    .. [1] David & Nagaraja, Order Statistics, 3rd ed., 2003, sec. 2.1.
+    """
+    kind, n, k = _check_geometry(kind, n_ref, rank)
+    zz = _check_real(z, "z", "a finite number")
+    return float(_estimate_cdf(kind, n, k, zz))
+
+
+# --------------------------------------------------------------------------
+# Detection probability
+# --------------------------------------------------------------------------
+
+
+def _snr_linear(snr_db: float) -> float:
+    return 10.0 ** (snr_db / 10.0)
+
+
+def _cut_density_sw0(x, snr: float):
+    """Density of the CUT power, non-fluctuating target of power ``snr`` in unit noise.
+
+    ``exp(-(x + s)) I0(2 sqrt(s x))``, written with the scaled Bessel function
+    ``i0e`` so that nothing overflows.
+    """
+    x = np.maximum(x, 0.0)
+    r = np.sqrt(x)
+    rs = math.sqrt(snr)
+    return np.exp(-((r - rs) ** 2)) * special.i0e(2.0 * rs * r)
+
+
+def _pd_sw0(kind: str, n: int, k: int | None, alpha: float, snr: float) -> float:
+    """Swerling 0 Pd of a CFAR detector: P(X > alpha Z) by quadrature.
+
+    Pd = integral_0^inf f_X(x) P(Z <= x/alpha) dx, f_X the Rician-power density.
+    """
+    rs = math.sqrt(snr)
+    x_hi = (rs + math.sqrt(_TAIL_R)) ** 2  # P(X > x_hi) <= exp(-_TAIL_R)
+    q = np.array([1e-9, 1e-4, 0.05, 0.5, 0.95, 1 - 1e-4, 1 - 1e-9])
+    pts = set(float(v) for v in alpha * _estimate_ppf(kind, n, k, q))
+    pts.update([snr, max(snr - 3 * rs, 0.0), snr + 3 * rs + 1.0])
+    pts = sorted(p for p in pts if 0.0 < p < x_hi and math.isfinite(p))
+
+    def integrand(x: float) -> float:
+        return float(_cut_density_sw0(x, snr) * _estimate_cdf(kind, n, k, x / alpha))
+
+    val, _err = integrate.quad(
+        integrand, 0.0, x_hi, points=pts or None, epsabs=_QUAD_EPSABS, epsrel=_QUAD_EPSREL, limit=500
+    )
+    return min(max(val, 0.0), 1.0)
+
+
+def _pd(kind: str, n: int, k: int | None, alpha: float, snr: float, swerling: int) -> float:
+    if swerling == 1:
+        # Exponential CUT power of mean 1 + snr: Pfa formula at alpha / (1 + snr)  [2], [8]
+        return math.exp(_log_pfa(kind, n, alpha / (1.0 + snr), k))
+    return _pd_sw0(kind, n, k, alpha, snr)
+
+
+def pd(kind: str, n_ref: int, alpha: float, snr_db: float, swerling: int, rank: int | None = None) -> float:
+    """Detection probability of a CFAR detector.
+
+    Parameters
+    ----------
+    kind : {"ca", "go", "so", "os"}
+        Detector kind.
+    n_ref : int
+        Total number of reference cells N.
+    alpha : float
+        Threshold factor (alpha) > 0.
+    snr_db : float
+        Per-cell signal-to-noise power ratio of the target in the CUT, dB
+        (finite). Reference cells hold noise only.
+    swerling : {0, 1}
+        0: non-fluctuating target; 1: Swerling I (Rayleigh amplitude,
+        constant over the single look).
+    rank : int, optional
+        Rank k, ``os`` only.
+
+    Returns
+    -------
+    float
+        Pd in [0, 1].
+
+    Notes
+    -----
+    Swerling I: the CUT power is exponential with mean ``1 + SNR``, so
+    ``Pd = Pfa(alpha / (1 + SNR))`` for every kind, e.g. CA
+    ``(1 + alpha / (N (1 + SNR)))^(-N)`` [1]_, [3]_.
+
+    Swerling 0: given the noise estimate, ``P(X > t) = Q1(sqrt(2 SNR),
+    sqrt(2 t))`` (Marcum Q [2]_). Pd is its average over the distribution of
+    the noise estimate (:func:`noise_estimate_cdf`), computed as
+    ``integral f_X(x) P(Z <= x / alpha) dx`` with ``f_X(x) = exp(-(x + SNR))
+    I0(2 sqrt(SNR x))`` by adaptive Gauss-Kronrod quadrature
+    (scipy.integrate.quad) on ``[0, (sqrt(SNR) + sqrt(42))^2]`` with
+    breakpoints at quantiles of ``alpha Z``. Absolute error below 1e-9
+    (tolerances 1e-13 absolute, 1e-10 relative; the cut tail holds at most
+    ``exp(-42)``).
+
+    References
+    ----------
+    .. [1] Richards, Fundamentals of Radar Signal Processing, 2005, ch. 7.
+    .. [2] Marcum, IRE Trans. IT-6(2), 1960.
+    .. [3] Swerling, IRE Trans. IT-6(2), 1960.
+    """
+    kind, n, k = _check_geometry(kind, n_ref, rank)
+    a = _check_alpha(alpha)
+    s = _snr_linear(_check_snr_db(snr_db))
+    return _pd(kind, n, k, a, s, _check_swerling(swerling))
+
+
+def _ideal_pd(pfa: float, snr: float, swerling: int) -> float:
+    t = -math.log(pfa)
+    if swerling == 1:
+        return pfa ** (1.0 / (1.0 + snr))
+    return float(stats.ncx2.sf(2.0 * t, 2, 2.0 * snr)) if snr > 0 else pfa
+
+
+def ideal_pd(pfa: float, snr_db: float, swerling: int) -> float:
+    """Detection probability of the ideal fixed-threshold detector (noise power known).
+
+    Parameters
+    ----------
+    pfa : float
+        False-alarm probability in (0, 1); the threshold is ``-ln(Pfa)``
+        times the noise power.
+    snr_db : float
+        Per-cell SNR in dB.
+    swerling : {0, 1}
+        Target model.
+
+    Returns
+    -------
+    float
+        Pd.
+
+    Notes
+    -----
+    Swerling I: ``Pd = Pfa^(1 / (1 + SNR))`` [1]_, [3]_. Swerling 0:
+    ``Pd = Q1(sqrt(2 SNR), sqrt(-2 ln Pfa))`` [2]_, evaluated as the
+    survival function of the noncentral chi-square distribution with 2
+    degrees of freedom and noncentrality ``2 SNR`` at ``-2 ln Pfa``
+    (scipy.stats.ncx2.sf).
+
+    References
+    ----------
+    .. [1] Richards, Fundamentals of Radar Signal Processing, 2005, ch. 6.
+    .. [2] Marcum, IRE Trans. IT-6(2), 1960.
+    .. [3] Swerling, IRE Trans. IT-6(2), 1960.
+    """
+    p = _check_pfa(pfa)
+    s = _snr_linear(_check_snr_db(snr_db))
+    return _ideal_pd(p, s, _check_swerling(swerling))
+
+
+# --------------------------------------------------------------------------
+# Required SNR and CFAR loss
+# --------------------------------------------------------------------------
+
+
+def _solve_snr_db(pd_of_snr, target: float) -> float:
+    """Solve pd_of_snr(snr) = target for snr in dB; pd_of_snr increases with SNR."""
+
+    def f(db: float) -> float:
+        return pd_of_snr(_snr_linear(db)) - target
+
+    lo, hi = -20.0, 40.0
+    while f(lo) >= 0.0:
+        lo -= 20.0
+        if lo < _SNR_DB_LIMITS[0]:
+            raise SpecError("--pd", f"got {target!r}, too close to Pfa to resolve", "a Pd well above Pfa")
+    while f(hi) <= 0.0:
+        hi += 20.0
+        if hi > _SNR_DB_LIMITS[1]:
+            raise SpecError("--pd", f"got {target!r}, too close to 1 to resolve", "a Pd well below 1")
+    return optimize.brentq(f, lo, hi, xtol=1e-9, rtol=1e-12, maxiter=200)
+
+
+def required_snr_db(
+    kind: str, n_ref: int, pfa: float, pd: float, swerling: int, rank: int | None = None
+) -> float:
+    """SNR (dB) a CFAR detector designed for ``pfa`` needs to reach ``pd``.
+
+    Parameters
+    ----------
+    kind : {"ca", "go", "so", "os"}
+        Detector kind.
+    n_ref : int
+        Total number of reference cells N.
+    pfa : float
+        Design false-alarm probability in (0, 1); alpha follows from
+        :func:`alpha_from_pfa`.
+    pd : float
+        Wanted detection probability in (pfa, 1).
+    swerling : {0, 1}
+        Target model.
+    rank : int, optional
+        Rank k, ``os`` only.
+
+    Returns
+    -------
+    float
+        SNR in dB.
+
+    Notes
+    -----
+    Brent's method [1]_ (scipy.optimize.brentq) on ``Pd(SNR_dB) - pd``, which
+    increases strictly with SNR; absolute tolerance 1e-9 dB.
+
+    References
+    ----------
+    .. [1] R. P. Brent, *Algorithms for Minimization without Derivatives*,
+       Prentice-Hall, 1973, ch. 4.
+    """
+    kind, n, k = _check_geometry(kind, n_ref, rank)
+    p = _check_pfa(pfa)
+    target = _check_pd(pd, p)
+    sw = _check_swerling(swerling)
+    alpha = _alpha_from_pfa(kind, n, p, k)
+    return _solve_snr_db(lambda s: _pd(kind, n, k, alpha, s, sw), target)
+
+
+def ideal_required_snr_db(pfa: float, pd: float, swerling: int) -> float:
+    """SNR (dB) the ideal fixed-threshold detector needs to reach ``pd``.
+
+    Parameters
+    ----------
+    pfa : float
+        False-alarm probability in (0, 1).
+    pd : float
+        Wanted detection probability in (pfa, 1).
+    swerling : {0, 1}
+        Target model.
+
+    Returns
+    -------
+    float
+        SNR in dB, solved with Brent's method on :func:`ideal_pd` [1]_.
+
+    References
+    ----------
+    .. [1] R. P. Brent, *Algorithms for Minimization without Derivatives*,
+       Prentice-Hall, 1973, ch. 4.
+    """
+    p = _check_pfa(pfa)
+    target = _check_pd(pd, p)
+    sw = _check_swerling(swerling)
+    return _solve_snr_db(lambda s: _ideal_pd(p, s, sw), target)
+
+
+def cfar_loss_db(kind: str, n_ref: int, pfa: float, pd: float, swerling: int, rank: int | None = None) -> float:
+    """CFAR loss: extra SNR (dB) the CFAR detector needs over the ideal detector.
+
+    Parameters
+    ----------
+    kind : {"ca", "go", "so", "os"}
+        Detector kind.
+    n_ref : int
+        Total number of reference cells N.
+    pfa : float
+        False-alarm probability in (0, 1), the same for both detectors.
+    pd : float
+        Detection probability in (pfa, 1) at which the SNRs are compared.
+    swerling : {0, 1}
+        Target model.
+    rank : int, optional
+        Rank k, ``os`` only.
+
+    Returns
+    -------
+    float
+        ``required_snr_db(...) - ideal_required_snr_db(pfa, pd, swerling)``,
+        positive for every finite N.
+
+    Notes
+    -----
+    Definition as in [1]_: the increase in SNR needed by the CFAR detector
+    to keep the same Pd and Pfa as a detector that knows the noise power.
+
+    References
+    ----------
+    .. [1] Richards, Fundamentals of Radar Signal Processing, 2005, ch. 7.
+    """
+    return required_snr_db(kind, n_ref, pfa, pd, swerling, rank) - ideal_required_snr_db(pfa, pd, swerling)
+
+
+# --------------------------------------------------------------------------
+# Bundle for the command line
+# --------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class SwerlingCase:
+    """Detection figures of one target model.
+
+    Attributes
+    ----------
+    swerling : int
+        0 or 1.
+    pd : tuple of float
+        CFAR Pd at each SNR of :attr:`Design.snr_db`.
+    ideal_pd : tuple of float
+        Ideal fixed-threshold Pd at the same SNRs and Pfa.
+    snr_db_required : float
+        SNR the CFAR detector needs for :attr:`Design.loss_pd`.
+    snr_db_ideal : float
+        SNR the ideal detector needs for :attr:`Design.loss_pd`.
+    cfar_loss_db : float
+        ``snr_db_required - snr_db_ideal``.
+    """
+
+    swerling: int
+    pd: tuple[float, ...]
+    ideal_pd: tuple[float, ...]
+    snr_db_required: float
+    snr_db_ideal: float
+    cfar_loss_db: float
+
+
+@dataclass(frozen=True)
+class Design:
+    """A threshold design: alpha, Pfa, Pd at chosen SNRs and CFAR loss.
+
+    Attributes
+    ----------
+    kind : str
+        Detector kind.
+    n_ref : int
+        Total number of reference cells N.
+    rank : int or None
+        OS rank k.
+    alpha : float
+        Threshold factor (alpha).
+    pfa : float
+        False-alarm probability of ``alpha``.
+    snr_db : tuple of float
+        SNRs (dB) at which Pd is reported.
+    loss_pd : float
+        Pd at which the CFAR loss is computed.
+    cases : tuple of SwerlingCase
+        One entry per requested Swerling case.
+    inputs : dict
+        The arguments as given (for echoing in reports).
+    """
+
+    kind: str
+    n_ref: int
+    rank: int | None
+    alpha: float
+    pfa: float
+    snr_db: tuple[float, ...]
+    loss_pd: float
+    cases: tuple[SwerlingCase, ...]
+    inputs: dict = field(default_factory=dict)
+
+    @property
+    def rule(self) -> str:
+        """What alpha multiplies, in words."""
+        return threshold_rule(self.kind, self.n_ref, self.rank)
+
+    def to_dict(self) -> dict:
+        """Plain JSON-ready dictionary of the design."""
+        return {
+            "inputs": dict(self.inputs),
+            "detector": self.kind,
+            "ref_cells": self.n_ref,
+            "rank": self.rank,
+            "threshold": self.rule,
+            "alpha": self.alpha,
+            "pfa": self.pfa,
+            "snr_db": list(self.snr_db),
+            "loss_pd": self.loss_pd,
+            "swerling": [
+                {
+                    "swerling": c.swerling,
+                    "pd": list(c.pd),
+                    "ideal_pd": list(c.ideal_pd),
+                    "snr_db_required": c.snr_db_required,
+                    "snr_db_ideal": c.snr_db_ideal,
+                    "cfar_loss_db": c.cfar_loss_db,
+                }
+                for c in self.cases
+            ],
+        }
+
+
+def design(
+    kind: str,
+    n_ref: int,
+    *,
+    pfa: float | None = None,
+    alpha: float | None = None,
+    rank: int | None = None,
+    snr_db: Iterable[float] = (10.0, 13.0, 16.0),
+    loss_pd: float = 0.9,
+    swerling: Iterable[int] = (0, 1),
+) -> Design:
+    """Design (or analyse) a CFAR threshold.
+
+    Parameters
+    ----------
+    kind : {"ca", "go", "so", "os"}
+        Detector kind.
+    n_ref : int
+        Total number of reference cells N.
+    pfa, alpha : float
+        Give exactly one: the wanted Pfa (alpha is designed) or alpha (its
+        Pfa is analysed).
+    rank : int, optional
+        Rank k, ``os`` only.
+    snr_db : iterable of float
+        SNRs (dB) at which to report Pd; at least one.
+    loss_pd : float
+        Pd in (Pfa, 1) at which to report the CFAR loss.
+    swerling : iterable of {0, 1}
+        Target models to report.
+
+    Returns
+    -------
+    Design
+        See :class:`Design`.
+
+    Notes
+    -----
+    Uses :func:`alpha_from_pfa` / :func:`pfa_from_alpha`, :func:`pd`,
+    :func:`ideal_pd`, :func:`required_snr_db` and :func:`cfar_loss_db`;
+    their references apply.
+    """
+    kind, n, k = _check_geometry(kind, n_ref, rank)
+    if (pfa is None) == (alpha is None):
+        raise SpecError("--pfa", "give exactly one of --pfa and --alpha", "--pfa P or --alpha A")
+    if pfa is not None:
+        p = _check_pfa(pfa)
+        a = _alpha_from_pfa(kind, n, p, k)
+    else:
+        a = _check_alpha(alpha)
+        p = math.exp(_log_pfa(kind, n, a, k))
+        if not 0.0 < p < 1.0:
+            raise SpecError("--alpha", f"got {alpha!r}, Pfa underflows to 0", "an alpha with Pfa > 1e-300")
+    snrs = tuple(_check_snr_db(s) for s in snr_db)
+    if not snrs:
+        raise SpecError("--snr-db", "no value given", "one or more finite numbers of dB")
+    target = _check_pd(loss_pd, p)
+    sws = tuple(dict.fromkeys(_check_swerling(s) for s in swerling))
+    if not sws:
+        raise SpecError("--swerling", "no value given", "0 or 1")
+    cases = []
+    for sw in sws:
+        pds = tuple(_pd(kind, n, k, a, _snr_linear(s), sw) for s in snrs)
+        ideal = tuple(_ideal_pd(p, _snr_linear(s), sw) for s in snrs)
+        req = _solve_snr_db(lambda s, sw=sw: _pd(kind, n, k, a, s, sw), target)
+        ide = _solve_snr_db(lambda s, sw=sw: _ideal_pd(p, s, sw), target)
+        cases.append(SwerlingCase(sw, pds, ideal, req, ide, req - ide))
+    inputs = {
+        "detector": kind,
+        "ref_cells": n,
+        "rank": k,
+        "pfa": pfa,
+        "alpha": alpha,
+        "snr_db": list(snrs),
+        "pd": loss_pd,
+        "swerling": list(sws),
+    }
+    return Design(kind, n, k, a, p, snrs, target, tuple(cases), inputs)
