@@ -1,0 +1,178 @@
+"""``cfarvec design``: threshold factor (alpha), Pfa, Pd and CFAR loss of one detector.
+
+The work is done by :mod:`refmodel.threshold_design`; this module only parses
+options, builds a report dictionary and prints it as text or JSON.
+
+To extend the command (e.g. with fixed-point fields), add options in
+:func:`add_parser`, add keys to the dictionary in :func:`build_report` and,
+for the text output, append a function to ``TEXT_SECTIONS``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+from typing import Callable
+
+from refmodel import threshold_design as td
+
+DEFAULT_SNR_DB = (10.0, 13.0, 16.0)
+DEFAULT_PD = 0.9
+
+_DESCRIPTION = """\
+Design a CFAR threshold factor (alpha) for a wanted false-alarm probability
+(--pfa), or analyse a given alpha (--alpha), for square-law detected
+exponential noise. Reports Pd at the requested SNRs for Swerling 0 and
+Swerling I targets, next to the ideal detector that knows the noise power,
+and the CFAR loss at --pd. Formulas and sources: docs/theory.md.
+
+What alpha multiplies: ca = mean of all N reference cells; go / so = the
+larger / smaller of the two half-window means (N/2 cells per side);
+os = the K-th smallest of the N reference cells."""
+
+
+def add_parser(subparsers) -> argparse.ArgumentParser:
+    """Register the ``design`` sub-command.
+
+    Parameters
+    ----------
+    subparsers : argparse._SubParsersAction
+        From :meth:`argparse.ArgumentParser.add_subparsers`.
+
+    Returns
+    -------
+    argparse.ArgumentParser
+        The new sub-parser (``func`` is set to :func:`run`).
+    """
+    p = subparsers.add_parser(
+        "design",
+        help="threshold factor (alpha) <-> Pfa, Pd and CFAR loss",
+        description=_DESCRIPTION,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    p.add_argument("--detector", choices=td.KINDS, default="ca", help="detector kind (default: ca)")
+    p.add_argument(
+        "--ref-cells", type=int, required=True, metavar="N", help="total reference cells N, both sides together"
+    )
+    p.add_argument("--rank", type=int, metavar="K", help="rank K in 1..N of the order statistic (os only)")
+    target = p.add_mutually_exclusive_group(required=True)
+    target.add_argument("--pfa", type=float, metavar="P", help="wanted false-alarm probability, in (0, 1)")
+    target.add_argument("--alpha", type=float, metavar="A", help="given threshold factor, > 0")
+    p.add_argument(
+        "--snr-db",
+        type=float,
+        nargs="+",
+        default=list(DEFAULT_SNR_DB),
+        metavar="DB",
+        help="SNR values (dB) at which to report Pd (default: %(default)s)",
+    )
+    p.add_argument(
+        "--pd", type=float, default=DEFAULT_PD, metavar="P", help="Pd at which to report the CFAR loss (default: 0.9)"
+    )
+    p.add_argument(
+        "--swerling",
+        type=int,
+        nargs="+",
+        choices=(0, 1),
+        default=None,
+        help="target models to report: 0 (non-fluctuating), 1 (Swerling I); default both",
+    )
+    p.add_argument("--json", action="store_true", help="print one JSON object instead of text")
+    p.set_defaults(func=run)
+    return p
+
+
+def build_report(args: argparse.Namespace) -> dict:
+    """Compute the design and return it as a JSON-ready dictionary.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        Parsed options of the ``design`` sub-command.
+
+    Returns
+    -------
+    dict
+        :meth:`refmodel.threshold_design.Design.to_dict`.
+
+    Raises
+    ------
+    refmodel.errors.SpecError
+        On any out-of-range option.
+    """
+    d = td.design(
+        args.detector,
+        args.ref_cells,
+        pfa=args.pfa,
+        alpha=args.alpha,
+        rank=args.rank,
+        snr_db=args.snr_db,
+        loss_pd=args.pd,
+        swerling=args.swerling if args.swerling else (0, 1),
+    )
+    return d.to_dict()
+
+
+def _case_name(sw: int) -> str:
+    return "Swerling 0" if sw == 0 else "Swerling I"
+
+
+def _text_threshold(r: dict) -> list[str]:
+    geometry = f"{r['detector']}, N = {r['ref_cells']} reference cells"
+    if r["rank"] is not None:
+        geometry += f", rank K = {r['rank']}"
+    how = "designed for the given Pfa" if r["inputs"]["pfa"] is not None else "from the given alpha"
+    return [
+        "Threshold",
+        f"  detector   {geometry}",
+        f"  rule       {r['threshold']}",
+        f"  alpha      {r['alpha']:.10g}",
+        f"  Pfa        {r['pfa']:.6e}  ({how})",
+    ]
+
+
+def _text_pd(r: dict) -> list[str]:
+    cases = r["swerling"]
+    head = f"  {'SNR (dB)':>9}"
+    for c in cases:
+        name = _case_name(c["swerling"])
+        head += f"  {name + ' CFAR':>17}  {name + ' ideal':>17}"
+    lines = ["Detection probability (ideal = noise power known)", head]
+    for i, snr in enumerate(r["snr_db"]):
+        row = f"  {snr:>9.2f}"
+        for c in cases:
+            row += f"  {c['pd'][i]:>17.6f}  {c['ideal_pd'][i]:>17.6f}"
+        lines.append(row)
+    return lines
+
+
+def _text_loss(r: dict) -> list[str]:
+    lines = [
+        f"CFAR loss at Pd = {r['loss_pd']:g}, Pfa = {r['pfa']:.3e}",
+        f"  {'target':<11} {'CFAR needs':>12} {'ideal needs':>12} {'loss':>10}",
+    ]
+    for c in r["swerling"]:
+        lines.append(
+            f"  {_case_name(c['swerling']):<11} {c['snr_db_required']:>9.3f} dB"
+            f" {c['snr_db_ideal']:>9.3f} dB {c['cfar_loss_db']:>7.3f} dB"
+        )
+    return lines
+
+
+#: Text report sections, in order; each maps the report dict to lines.
+TEXT_SECTIONS: list[Callable[[dict], list[str]]] = [_text_threshold, _text_pd, _text_loss]
+
+
+def format_text(report: dict) -> str:
+    """Render a report dictionary as plain text (sections separated by a blank line)."""
+    return "\n\n".join("\n".join(section(report)) for section in TEXT_SECTIONS)
+
+
+def run(args: argparse.Namespace) -> int:
+    """Run ``cfarvec design``; returns the exit code (0)."""
+    report = build_report(args)
+    if args.json:
+        print(json.dumps(report, indent=2, allow_nan=False))
+    else:
+        print(format_text(report))
+    return 0
