@@ -40,6 +40,10 @@ KINDS: tuple[str, ...] = ("ca", "go", "so", "os")
 #: Comparison operators between the CUT and its threshold.
 COMPARES: tuple[str, ...] = (">", ">=")
 
+#: Upper bound on the number of float64 values the OS detectors gather at once
+#: (32 MiB); longer inputs are processed in blocks of CUT positions.
+_OS_GATHER_BUDGET = 1 << 22
+
 
 @dataclass(frozen=True)
 class CfarResult:
@@ -297,14 +301,17 @@ def _kth_smallest(cells, k):
 
 
 def _os_estimate_1d(xp, L, R, G, k, edge, lag_bad, lead_bad):
-    """OS estimate from a strided window view and a partial sort."""
+    """OS estimate: gather each CUT's reference cells from a window view, partial sort."""
     W = 2 * R + 2 * G + 1
     win = sliding_window_view(xp, W, axis=-1)  # (..., L, W), a view
-    lag = win[..., :R]
-    lead = win[..., R + 2 * G + 1 :]
-    est = _kth_smallest(np.concatenate([lag, lead], axis=-1), k)
+    cols = np.r_[0:R, R + 2 * G + 1 : W]  # reference cells inside the window
+    est = np.empty(xp.shape[:-1] + (L,))
+    batch = int(np.prod(xp.shape[:-1], dtype=np.int64))
+    block = max(1, _OS_GATHER_BUDGET // max(1, batch * 2 * R))
+    for n0 in range(0, L, block):  # blocks of frame positions, to bound memory
+        est[..., n0 : n0 + block] = _kth_smallest(win[..., n0 : n0 + block, cols], k)
     if edge == ONE_SIDED:
         kh = one_sided_rank(k, 2 * R, R)
-        est[..., lag_bad] = _kth_smallest(lead[..., lag_bad, :], kh)
-        est[..., lead_bad] = _kth_smallest(lag[..., lead_bad, :], kh)
+        est[..., lag_bad] = _kth_smallest(win[..., lag_bad, R + 2 * G + 1 :], kh)
+        est[..., lead_bad] = _kth_smallest(win[..., lead_bad, :R], kh)
     return est
