@@ -323,10 +323,14 @@ def test_monte_carlo_pfa_os_full_window(k):
 
 @pytest.mark.parametrize("kind", ["go", "so"])
 def test_monte_carlo_pfa_go_so_full_window(kind):
-    alpha = _alpha_for(lambda a: pfa_go_so(a, R_MC, kind), PFA_TARGET)
+    # alpha of CA at PFA_TARGET: GO/SO then sit near it (numerical
+    # integration is too slow to invert in a test).
+    alpha = _alpha_for(lambda a: pfa_ca(a, N_MC), PFA_TARGET)
+    pfa = pfa_go_so(alpha, R_MC, kind)
+    assert 1e-3 <= pfa <= 5e-2
     x = _frames(103 if kind == "go" else 104, R_MC, G_MC)
     res = cfar_1d(x, kind, R_MC, G_MC, alpha, edge="skip")
-    _assert_rate(res.detections.sum(), TRIALS, pfa_go_so(alpha, R_MC, kind))
+    _assert_rate(res.detections.sum(), TRIALS, pfa)
 
 
 def test_monte_carlo_pd_ca_swerling1():
