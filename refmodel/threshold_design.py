@@ -62,9 +62,13 @@ from dataclasses import dataclass, field
 from typing import Iterable
 
 import numpy as np
-from scipy import integrate, optimize, special, stats
+from scipy import special
 
 from .errors import SpecError
+
+# scipy.integrate, scipy.optimize and scipy.stats are imported inside the functions that
+# use them: together they take over a second to import, and the command line should
+# report bad input without paying for them.
 
 __all__ = [
     "KINDS",
@@ -320,6 +324,8 @@ def _alpha_from_pfa(kind: str, n: int, pfa: float, k: int | None) -> float:
     if kind == "ca":
         return n * math.expm1(-target / n)
 
+    from scipy import optimize
+
     # Solve in u = ln(alpha): one bracket search covers every magnitude of alpha.
     def f(u: float) -> float:
         return _log_pfa(kind, n, math.exp(u), k) - target
@@ -459,6 +465,8 @@ def _pd_sw0(kind: str, n: int, k: int | None, alpha: float, snr: float) -> float
 
     Pd = integral_0^inf f_X(x) P(Z <= x/alpha) dx, f_X the Rician-power density.
     """
+    from scipy import integrate
+
     rs = math.sqrt(snr)
     x_hi = (rs + math.sqrt(_TAIL_R)) ** 2  # P(X > x_hi) <= exp(-_TAIL_R)
     q = np.array([1e-9, 1e-4, 0.05, 0.5, 0.95, 1 - 1e-4, 1 - 1e-9])
@@ -536,6 +544,8 @@ def pd(kind: str, n_ref: int, alpha: float, snr_db: float, swerling: int, rank: 
 
 
 def _ideal_pd(pfa: float, snr: float, swerling: int) -> float:
+    from scipy import stats
+
     t = -math.log(pfa)
     if swerling == 1:
         return pfa ** (1.0 / (1.0 + snr))
@@ -586,6 +596,8 @@ def ideal_pd(pfa: float, snr_db: float, swerling: int) -> float:
 
 def _solve_snr_db(pd_of_snr, target: float) -> float:
     """Solve pd_of_snr(snr) = target for snr in dB; pd_of_snr increases with SNR."""
+    from scipy import optimize
+
 
     def f(db: float) -> float:
         return pd_of_snr(_snr_linear(db)) - target
