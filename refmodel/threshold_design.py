@@ -209,7 +209,7 @@ def _log_pfa(kind: str, n: int, alpha: float, rank: int | None) -> float:
         h = n // 2
         t = alpha / h  # multiplier of the per-side sum
         # SO: 2 (1+T)^-n I_{(1+T)/(2+T)}(n, n); GO: 2 (1+T)^-n I_{1/(2+T)}(n, n).
-        # Same as the finite sums of [4], [5] (docs/theory.md, eqs. (5)-(8)).
+        # Same as the finite sums of [4], [5] (docs/theory.md, eqs. (3)-(6)).
         x = 1.0 / (2.0 + t) if kind == "go" else (1.0 + t) / (2.0 + t)
         reg = special.betainc(h, h, x)
         if reg <= 0.0:
