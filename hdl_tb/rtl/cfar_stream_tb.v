@@ -1,0 +1,436 @@
+`timescale 1ns/1ps
+`default_nettype none
+// cfar_stream_tb: self-checking, file-driven testbench of cfar_stream in
+// plain Verilog-2005.
+//
+// Reads the stimulus words (sample in [INPUT_BITS-1:0], last marker in bit
+// INPUT_BITS) and the expected output words (docs/bit-true.md section 8)
+// with $readmemh (IEEE Std 1364-2005, 17.2.9), drives the input with seeded
+// pseudo-random gaps (s_axis_tvalid low) and the output with seeded
+// pseudo-random backpressure (m_axis_tready low), compares every output
+// transfer with the next expected word, writes every received word to
+// OUT_FILE in hex, and ends with one summary line:
+//   PASS <n_words>
+//   FAIL <n_errors> first=<description of the first error>
+// followed by $finish.
+//
+// It also checks, as errors:
+// - the output handshake (ARM IHI 0051A: once TVALID is high it stays high
+//   with TDATA stable until the transfer);
+// - with STALL_PERCENT = 0, the drain: s_axis_tready low for exactly R+G
+//   cycles after each accepted last marker, high again afterwards;
+// - with GAP_PERCENT = 0 and STALL_PERCENT = 0, the latency of every word:
+//   R+G+PIPELINE_STAGES cycles from its input transfer to its output transfer.
+//
+// Every file name and knob below is a parameter and can also be overridden at
+// run time by a plusarg of the same name (+STIM_FILE=..., +GAP_PERCENT=...,
+// +DUMP, +DUMP_FILE=...), so one compiled image serves many runs.
+module cfar_stream_tb;
+
+    // ---------------- core parameters (see cfar_stream.v) ----------------
+    // Sample width W_in.
+    parameter integer INPUT_BITS = 16;
+    // Reference cells per side R.
+    parameter integer REF_CELLS = 16;
+    // Guard cells per side G.
+    parameter integer GUARD_CELLS = 2;
+    // Detector kind: 0 = CA, 1 = GO, 2 = SO.
+    parameter integer KIND = 0;
+    // Edge policy: 0 = skip, 1 = zero-pad, 2 = one-sided.
+    parameter integer EDGE = 0;
+    // Running-sum width W_S.
+    parameter integer SUM_BITS = 20;
+    // The constant A.
+    parameter [63:0] ALPHA_INT = 64'd2212;
+    // Product fraction bits dropped, d.
+    parameter integer DROP_BITS = 12;
+    // Threshold fraction bits F_T.
+    parameter integer THRESHOLD_FRAC_BITS = 0;
+    // Threshold width W_T.
+    parameter integer THRESHOLD_BITS = 21;
+    // Rounding: 0 = floor, 1 = half-up, 2 = half-even.
+    parameter integer ROUNDING = 1;
+    // Overflow: 0 = saturate, 1 = wrap.
+    parameter integer OVERFLOW = 0;
+    // Decision: 0 = '>', 1 = '>='.
+    parameter integer COMPARE_GE = 0;
+    // Truncated shift-and-add multiplier (0/1).
+    parameter integer TRUNCATE_PARTIALS = 0;
+    // Register stages after the window.
+    parameter integer PIPELINE_STAGES = 2;
+    // Reset level of the core's srst (the bench drives it accordingly).
+    parameter integer SRST_LEVEL = 1;
+
+    // ---------------- bench parameters ----------------
+    // Stimulus hex file, one word per line.
+    parameter STIM_FILE = "stimulus.hex";
+    // Expected output hex file, one word per line.
+    parameter EXPECT_FILE = "expected.hex";
+    // File receiving every output word in hex, one per line.
+    parameter OUT_FILE = "received.hex";
+    // Words to use from the files; 0 = all (the first unwritten entry ends the list).
+    parameter integer N_WORDS = 0;
+    // Depth of the word memories (at least the number of words in the files).
+    parameter integer MAX_WORDS = 65536;
+    // Percent of cycles the source leaves s_axis_tvalid low when it has a word.
+    parameter integer GAP_PERCENT = 0;
+    // Percent of cycles the sink holds m_axis_tready low.
+    parameter integer STALL_PERCENT = 0;
+    // Seed of the $random sequence shared by gaps and stalls.
+    parameter integer SEED = 1;
+    // 1 = dump waveforms to DUMP_FILE.
+    parameter integer DUMP = 0;
+    // Waveform file name (VCD unless the simulator is told otherwise).
+    parameter DUMP_FILE = "cfar_stream_tb.vcd";
+    // Cycles before the bench gives up; 0 = automatic from the word count and the percentages.
+    parameter integer TIMEOUT_CYCLES = 0;
+    // Mismatch lines printed in full (all are counted).
+    parameter integer MAX_REPORTS = 10;
+
+    // ---------------- derived ----------------
+    // Cells from the CUT to either end of the window.
+    localparam integer HALF = REF_CELLS + GUARD_CELLS;
+    // Stimulus word width.
+    localparam integer IN_W = INPUT_BITS + 1;
+    // Output word width.
+    localparam integer OUT_W = INPUT_BITS + THRESHOLD_BITS + 3;
+    // Output field positions (docs/bit-true.md section 8).
+    localparam integer T_LSB = INPUT_BITS;
+    localparam integer DET_BIT = INPUT_BITS + THRESHOLD_BITS;
+    localparam integer V_BIT = DET_BIT + 1;
+    localparam integer LAST_BIT = DET_BIT + 2;
+    // Clock period in ns.
+    localparam integer CLK_PERIOD = 10;
+
+    // ---------------- DUT ----------------
+    reg                  clk = 1'b0;
+    reg                  srst = (SRST_LEVEL != 0) ? 1'b1 : 1'b0;
+    reg  [INPUT_BITS-1:0] s_tdata = {INPUT_BITS{1'b0}};
+    reg                  s_tvalid = 1'b0;
+    reg                  s_tlast = 1'b0;
+    wire                 s_tready;
+    wire [OUT_W-1:0]     m_tdata;
+    wire                 m_tvalid;
+    reg                  m_tready = 1'b0;
+    wire                 m_tlast;
+
+    cfar_stream #(
+        .INPUT_BITS         (INPUT_BITS),
+        .REF_CELLS          (REF_CELLS),
+        .GUARD_CELLS        (GUARD_CELLS),
+        .KIND               (KIND),
+        .EDGE               (EDGE),
+        .SUM_BITS           (SUM_BITS),
+        .ALPHA_INT          (ALPHA_INT),
+        .DROP_BITS          (DROP_BITS),
+        .THRESHOLD_FRAC_BITS(THRESHOLD_FRAC_BITS),
+        .THRESHOLD_BITS     (THRESHOLD_BITS),
+        .ROUNDING           (ROUNDING),
+        .OVERFLOW           (OVERFLOW),
+        .COMPARE_GE         (COMPARE_GE),
+        .TRUNCATE_PARTIALS  (TRUNCATE_PARTIALS),
+        .PIPELINE_STAGES    (PIPELINE_STAGES),
+        .SRST_LEVEL         (SRST_LEVEL)
+    ) dut (
+        .clk          (clk),
+        .srst         (srst),
+        .s_axis_tdata (s_tdata),
+        .s_axis_tvalid(s_tvalid),
+        .s_axis_tready(s_tready),
+        .s_axis_tlast (s_tlast),
+        .m_axis_tdata (m_tdata),
+        .m_axis_tvalid(m_tvalid),
+        .m_axis_tready(m_tready),
+        .m_axis_tlast (m_tlast)
+    );
+
+    always #(CLK_PERIOD / 2) clk = ~clk;
+
+    // ---------------- files and run-time settings ----------------
+    reg [IN_W-1:0]  stim_mem   [0:MAX_WORDS-1];
+    reg [OUT_W-1:0] expect_mem [0:MAX_WORDS-1];
+    integer         in_cycle   [0:MAX_WORDS-1];
+
+    reg [8*1024-1:0] stim_name;
+    reg [8*1024-1:0] expect_name;
+    reg [8*1024-1:0] out_name;
+    reg [8*1024-1:0] dump_name;
+    integer gap_pct;
+    integer stall_pct;
+    integer seed;
+    integer n_words;
+    integer n_expect;
+    integer timeout;
+    integer out_fd;
+    integer i;
+
+    // ---------------- bench state ----------------
+    integer cycle      = 0;
+    integer in_idx     = 0;   // next stimulus word to offer
+    integer out_idx    = 0;   // next expected word
+    integer n_errors   = 0;
+    integer frame_idx  = 0;   // frame of the next expected word
+    integer sample_idx = 0;   // index within that frame
+    integer drain_left = -1;  // cycles of s_axis_tready low still expected (-1: not in a drain)
+    reg     running    = 1'b0;
+    reg     done       = 1'b0;
+    reg     have_first = 1'b0;
+    reg [8*400-1:0] first_error;
+    reg             prev_hold = 1'b0;       // last cycle: m_tvalid high, not taken
+    reg [OUT_W-1:0] prev_word;
+
+    task note_error;
+        input [8*400-1:0] text;
+        begin
+            if (!have_first) begin
+                first_error = text;
+                have_first  = 1'b1;
+            end
+            n_errors = n_errors + 1;
+        end
+    endtask
+
+    task finish_run;
+        begin
+            if (out_fd != 0) $fclose(out_fd);
+            if (n_errors == 0) $display("PASS %0d", out_idx);
+            else               $display("FAIL %0d first=%0s", n_errors, first_error);
+            $finish;
+        end
+    endtask
+
+    // Random percentage draws in 0..99 from two independent $random sequences
+    // (IEEE Std 1364-2005, 17.9.1), one for the source and one for the sink.
+    integer    gap_seed;
+    integer    stall_seed;
+    reg [31:0] gap_rand;
+    reg [31:0] stall_rand;
+
+    initial begin
+        stim_name   = STIM_FILE;
+        expect_name = EXPECT_FILE;
+        out_name    = OUT_FILE;
+        dump_name   = DUMP_FILE;
+        gap_pct     = GAP_PERCENT;
+        stall_pct   = STALL_PERCENT;
+        seed        = SEED;
+        n_words     = N_WORDS;
+        timeout     = TIMEOUT_CYCLES;
+        first_error = "none";
+        if ($value$plusargs("STIM_FILE=%s", stim_name)) ;
+        if ($value$plusargs("EXPECT_FILE=%s", expect_name)) ;
+        if ($value$plusargs("OUT_FILE=%s", out_name)) ;
+        if ($value$plusargs("DUMP_FILE=%s", dump_name)) ;
+        if ($value$plusargs("GAP_PERCENT=%d", gap_pct)) ;
+        if ($value$plusargs("STALL_PERCENT=%d", stall_pct)) ;
+        if ($value$plusargs("SEED=%d", seed)) ;
+        if ($value$plusargs("N_WORDS=%d", n_words)) ;
+        if ($value$plusargs("TIMEOUT_CYCLES=%d", timeout)) ;
+        gap_seed   = seed;
+        stall_seed = seed ^ 32'h5A5A_3C3C;
+
+        if (DUMP != 0 || $test$plusargs("DUMP")) begin
+            $dumpfile(dump_name);
+            $dumpvars(0, cfar_stream_tb);
+        end
+
+        if (n_words > MAX_WORDS) begin
+            $display("ERROR: N_WORDS=%0d exceeds MAX_WORDS=%0d", n_words, MAX_WORDS);
+            note_error("N_WORDS exceeds MAX_WORDS");
+            n_words = MAX_WORDS;
+        end
+        if (n_words > 0) begin
+            // Known word count: read exactly that range (no short-file warning).
+            $readmemh(stim_name, stim_mem, 0, n_words - 1);
+            $readmemh(expect_name, expect_mem, 0, n_words - 1);
+        end else begin
+            $readmemh(stim_name, stim_mem);
+            $readmemh(expect_name, expect_mem);
+        end
+
+        // Count the words: the first entry $readmemh left unwritten (x) ends each list.
+        if (n_words <= 0) begin
+            n_words = 0;
+            while (n_words < MAX_WORDS && ^stim_mem[n_words] !== 1'bx) n_words = n_words + 1;
+        end
+        n_expect = 0;
+        while (n_expect < MAX_WORDS && ^expect_mem[n_expect] !== 1'bx) n_expect = n_expect + 1;
+        if (n_expect != n_words) begin
+            $display("ERROR: %0d stimulus words but %0d expected words", n_words, n_expect);
+            note_error("stimulus and expected word counts differ");
+        end
+        if (n_words > 0 && stim_mem[n_words-1][INPUT_BITS] !== 1'b1) begin
+            $display("ERROR: the last stimulus word does not carry the last marker");
+            note_error("last stimulus word without last marker");
+        end
+        if (timeout <= 0) begin
+            // Generous: every word delayed by the worst gap and stall rates, plus drains.
+            // Generous: frames are at least one window long, so drains add less
+            // than one cycle per word; gaps and stalls slow the rest down.
+            timeout = 1000 + 4 * (2 * HALF + PIPELINE_STAGES)
+                      + 4 * n_words * (100 / (100 - (gap_pct > 95 ? 95 : gap_pct)) + 1)
+                                    * (100 / (100 - (stall_pct > 95 ? 95 : stall_pct)) + 1);
+        end
+
+        out_fd = $fopen(out_name, "w");
+        if (out_fd == 0) begin
+            $display("ERROR: cannot open %0s", out_name);
+            note_error("cannot open the output file");
+        end
+        $display("cfar_stream_tb: %0d words, GAP_PERCENT=%0d STALL_PERCENT=%0d SEED=%0d",
+                 n_words, gap_pct, stall_pct, seed);
+
+        // Synchronous reset for a few cycles.
+        repeat (4) @(posedge clk);
+        srst    <= (SRST_LEVEL != 0) ? 1'b0 : 1'b1;
+        running <= 1'b1;
+        if (n_words == 0) begin
+            @(posedge clk);
+            finish_run;
+        end
+    end
+
+    // ---------------- source: stimulus with random gaps ----------------
+    // Once s_tvalid is high it stays high with the same data until taken.
+    integer next_idx;
+    always @(posedge clk) begin
+        if (running && !done) begin
+            // Drain check (only meaningful without backpressure).
+            if (drain_left > 0) begin
+                if (stall_pct == 0 && s_tready) begin
+                    note_error("s_axis_tready high during the drain");
+                    $display("ERROR: cycle %0d: s_axis_tready high during the drain", cycle);
+                end
+                drain_left = drain_left - 1;
+            end else if (drain_left == 0) begin
+                if (stall_pct == 0 && !s_tready) begin
+                    note_error("s_axis_tready still low after R+G drain cycles");
+                    $display("ERROR: cycle %0d: s_axis_tready still low after R+G drain cycles", cycle);
+                end
+                drain_left = -1;
+            end
+            next_idx = in_idx;
+            if (s_tvalid && s_tready) begin
+                in_cycle[in_idx] = cycle;
+                next_idx = in_idx + 1;
+                if (s_tlast) begin
+                    drain_left = HALF;
+                end
+            end
+            in_idx <= next_idx;
+            gap_rand = $random(gap_seed);
+            if (!s_tvalid || s_tready) begin
+                if (next_idx < n_words && (gap_rand % 100) >= gap_pct) begin
+                    s_tvalid <= 1'b1;
+                    s_tdata  <= stim_mem[next_idx][INPUT_BITS-1:0];
+                    s_tlast  <= stim_mem[next_idx][INPUT_BITS];
+                end else begin
+                    s_tvalid <= 1'b0;
+                    s_tdata  <= {INPUT_BITS{1'bx}};
+                    s_tlast  <= 1'bx;
+                end
+            end
+        end
+    end
+
+    // ---------------- sink: random backpressure, checks ----------------
+    reg [OUT_W-1:0] exp_word;
+    integer latency;
+    always @(posedge clk) begin
+        if (running && !done) begin
+            cycle <= cycle + 1;
+            // Output handshake rule (ARM IHI 0051A, 2.2.1).
+            if (prev_hold && (!m_tvalid || m_tdata !== prev_word)) begin
+                note_error("m_axis_tvalid dropped or m_axis_tdata changed before the transfer");
+                $display("ERROR: cycle %0d: m_axis_tvalid dropped or m_axis_tdata changed before the transfer",
+                         cycle);
+            end
+            prev_hold <= m_tvalid && !m_tready;
+            prev_word <= m_tdata;
+
+            if (m_tvalid && m_tready) begin
+                $fwrite(out_fd, "%h\n", m_tdata);
+                if (out_idx >= n_words) begin
+                    note_error("more output words than input words");
+                    $display("ERROR: cycle %0d: extra output word %h", cycle, m_tdata);
+                end else begin
+                    exp_word = expect_mem[out_idx];
+                    if (m_tdata !== exp_word || m_tlast !== exp_word[LAST_BIT]) begin
+                        if (n_errors < MAX_REPORTS) begin
+                            $display("MISMATCH word %0d frame %0d sample %0d cut %0d: expected T=%0d det=%0d valid=%0d last=%0d, got cut %0d T=%0d det=%0d valid=%0d last=%0d (tlast %0d) [exp %h got %h]",
+                                out_idx, frame_idx, sample_idx, exp_word[INPUT_BITS-1:0],
+                                exp_word[T_LSB +: THRESHOLD_BITS], exp_word[DET_BIT], exp_word[V_BIT],
+                                exp_word[LAST_BIT], m_tdata[INPUT_BITS-1:0], m_tdata[T_LSB +: THRESHOLD_BITS],
+                                m_tdata[DET_BIT], m_tdata[V_BIT], m_tdata[LAST_BIT], m_tlast, exp_word, m_tdata);
+                        end
+                        if (!have_first) begin
+                            $sformat(first_error,
+                                "word %0d frame %0d sample %0d cut %0d: expected T=%0d det=%0d valid=%0d last=%0d, got cut %0d T=%0d det=%0d valid=%0d last=%0d",
+                                out_idx, frame_idx, sample_idx, exp_word[INPUT_BITS-1:0],
+                                exp_word[T_LSB +: THRESHOLD_BITS], exp_word[DET_BIT], exp_word[V_BIT],
+                                exp_word[LAST_BIT], m_tdata[INPUT_BITS-1:0], m_tdata[T_LSB +: THRESHOLD_BITS],
+                                m_tdata[DET_BIT], m_tdata[V_BIT], m_tdata[LAST_BIT]);
+                            have_first = 1'b1;
+                        end
+                        n_errors = n_errors + 1;
+                    end
+                    if (gap_pct == 0 && stall_pct == 0) begin
+                        latency = cycle - in_cycle[out_idx];
+                        if (latency != HALF + PIPELINE_STAGES) begin
+                            if (n_errors < MAX_REPORTS)
+                                $display("ERROR: word %0d: latency %0d cycles, expected R+G+PIPELINE_STAGES = %0d",
+                                         out_idx, latency, HALF + PIPELINE_STAGES);
+                            note_error("latency differs from R+G+PIPELINE_STAGES at full rate");
+                        end
+                    end
+                    if (exp_word[LAST_BIT]) begin
+                        frame_idx  = frame_idx + 1;
+                        sample_idx = 0;
+                    end else begin
+                        sample_idx = sample_idx + 1;
+                    end
+                end
+                out_idx = out_idx + 1;
+                if (out_idx == n_words) begin
+                    // Give a stray extra word a few cycles to show up, then stop.
+                    done <= 1'b1;
+                end
+            end
+
+            stall_rand = $random(stall_seed);
+            m_tready <= ((stall_rand % 100) >= stall_pct);
+
+            if (cycle >= timeout) begin
+                $display("ERROR: timeout after %0d cycles, %0d of %0d words received", cycle, out_idx, n_words);
+                if (!have_first) begin
+                    $sformat(first_error, "timeout after %0d cycles, %0d of %0d words received",
+                             cycle, out_idx, n_words);
+                    have_first = 1'b1;
+                end
+                n_errors = n_errors + 1;
+                finish_run;
+            end
+        end
+    end
+
+    // After the last expected word: keep the sink ready for a few cycles and
+    // count anything more the core emits, then report.
+    always @(posedge clk) begin
+        if (done) begin
+            m_tready <= 1'b1;
+            if (m_tvalid && m_tready) begin
+                $fwrite(out_fd, "%h\n", m_tdata);
+                note_error("more output words than input words");
+                $display("ERROR: extra output word %h", m_tdata);
+            end
+        end
+    end
+
+    initial begin
+        wait (done);
+        repeat (2 * HALF + PIPELINE_STAGES + 8) @(posedge clk);
+        finish_run;
+    end
+
+endmodule
+`default_nettype wire
