@@ -1,0 +1,277 @@
+"""Compile and run the pure-Verilog testbench of the reference core with Icarus Verilog.
+
+The testbench ``hdl_tb/rtl/cfar_stream_tb.v`` reads a stimulus and an
+expected-output hex file with ``$readmemh``, drives the core with optional
+seeded input gaps and output backpressure, compares every output word and
+prints one summary line (``PASS n`` or ``FAIL n first=...``). This module
+builds it for a block spec (one compiled image per parameter set, cached),
+runs it with ``vvp`` and returns a :class:`BenchResult`.
+
+Typical use::
+
+    from hdl_tb.verilog_bench import run_bench
+    result = run_bench(spec, "vectors/out/ca_default", stall_percent=30)
+    assert result.passed, result.first_mismatch
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import re
+import shutil
+import subprocess
+import tempfile
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Mapping
+
+from refmodel.block_spec import BlockSpec
+from refmodel.errors import SpecError
+
+from .core_params import BENCH_SOURCE, BENCH_TOP, CORE_SOURCES, CORE_TOP, core_parameters
+
+#: Default file names inside a vector folder.
+STIMULUS_FILE = "stimulus.hex"
+EXPECTED_FILE = "expected.hex"
+RECEIVED_FILE = "received.hex"
+
+_SUMMARY = re.compile(r"^(PASS|FAIL) (\d+)(?: first=(.*))?$", re.MULTILINE)
+_PARAM_ERROR = re.compile(r"(\w+)_PARAMETER_ERROR__(\w+)")
+_HEX_WORD = re.compile(r"^[0-9a-fA-FxXzZ_]+$")
+
+
+class BenchCompileError(RuntimeError):
+    """The testbench did not compile or elaborate (for example an illegal parameter combination).
+
+    Attributes
+    ----------
+    output : str
+        Everything the compiler printed.
+    """
+
+    def __init__(self, message: str, output: str):
+        super().__init__(message)
+        self.output = output
+
+
+@dataclass(frozen=True)
+class BenchResult:
+    """Outcome of one testbench run.
+
+    Attributes
+    ----------
+    passed : bool
+        True when the bench printed ``PASS``.
+    n_words : int
+        Output words received and compared.
+    n_mismatches : int
+        Errors the bench counted: words that differ from the expected ones,
+        plus handshake, drain, latency, word-count and timeout errors (0 on a pass).
+    first_mismatch : str or None
+        The bench's description of the first error (frame, sample, CUT,
+        expected and received fields), None on a pass.
+    received_file : pathlib.Path
+        Hex file holding every received word, one per line.
+    log : str
+        Everything ``vvp`` printed.
+    """
+
+    passed: bool
+    n_words: int
+    n_mismatches: int
+    first_mismatch: str | None
+    received_file: Path
+    log: str
+
+
+def find_tools() -> tuple[str, str]:
+    """Paths of ``iverilog`` and ``vvp``.
+
+    Raises
+    ------
+    SpecError
+        Field ``"simulator"`` when either program is not on ``PATH``.
+    """
+    iverilog, vvp = shutil.which("iverilog"), shutil.which("vvp")
+    if iverilog is None or vvp is None:
+        missing = "iverilog" if iverilog is None else "vvp"
+        raise SpecError("simulator", f"{missing} not found on PATH",
+                        "Icarus Verilog 11 or later installed (distribution package iverilog; `make tools`)")
+    return iverilog, vvp
+
+
+def count_hex_words(path: str | Path) -> int | None:
+    """Words in a ``$readmemh`` file, or None when it uses ``@address`` jumps.
+
+    Comments (``//`` and ``/* */``) and white space separate words as in
+    IEEE Std 1364-2005, 17.2.9.
+    """
+    text = Path(path).read_text(encoding="ascii", errors="replace")
+    text = re.sub(r"/\*.*?\*/", " ", text, flags=re.DOTALL)
+    text = re.sub(r"//[^\n]*", " ", text)
+    tokens = text.split()
+    if any(t.startswith("@") for t in tokens):
+        return None
+    return sum(1 for t in tokens if _HEX_WORD.match(t))
+
+
+def _default_build_root() -> Path:
+    return Path(tempfile.gettempdir()) / f"cfarvec-verilog-bench-{os.getuid() if hasattr(os, 'getuid') else 0}"
+
+
+def _source_digest() -> str:
+    h = hashlib.sha256()
+    for src in (*CORE_SOURCES, BENCH_SOURCE):
+        h.update(src.read_bytes())
+    return h.hexdigest()
+
+
+def compile_bench(params: Mapping[str, int], *, max_words: int = 65536, generation: str = "2005",
+                  build_root: str | Path | None = None) -> Path:
+    """Compile the testbench for one set of core parameters; return the ``vvp`` image.
+
+    Parameters
+    ----------
+    params : mapping of str to int
+        Core parameters (see :func:`hdl_tb.core_params.core_parameters`);
+        values are passed to ``iverilog -P`` unchecked, so an illegal
+        combination shows up as an elaboration error.
+    max_words : int, optional
+        Depth of the bench's word memories.
+    generation : {"2005", "2012"}, optional
+        Language generation flag for ``iverilog -g``.
+    build_root : path, optional
+        Folder for the cached images (default: a folder in the system temp
+        directory). Each parameter set gets its own sub-folder.
+
+    Returns
+    -------
+    pathlib.Path
+        The compiled image, reused when the sources and parameters are unchanged.
+
+    Raises
+    ------
+    SpecError
+        When Icarus Verilog is missing, or for a bad ``generation``.
+    BenchCompileError
+        When compilation or elaboration fails; an illegal parameter
+        combination is named in the message.
+    """
+    iverilog, _ = find_tools()
+    if generation not in ("2005", "2012"):
+        raise SpecError("generation", f"got {generation!r}", '"2005" or "2012"')
+    all_params = {**{k: int(v) for k, v in params.items()}, "MAX_WORDS": max(1, int(max_words))}
+    key = hashlib.sha256(repr((sorted(all_params.items()), generation, _source_digest())).encode()).hexdigest()[:16]
+    root = Path(build_root) if build_root is not None else _default_build_root()
+    out_dir = root / key
+    image = out_dir / "bench.vvp"
+    if image.is_file():
+        return image
+    out_dir.mkdir(parents=True, exist_ok=True)
+    tmp = out_dir / f"bench.{os.getpid()}.tmp"
+    cmd = [iverilog, f"-g{generation}", "-o", str(tmp), "-s", BENCH_TOP]
+    cmd += [f"-P{BENCH_TOP}.{name}={value}" for name, value in all_params.items()]
+    cmd += [str(s) for s in (*CORE_SOURCES, BENCH_SOURCE)]
+    proc = subprocess.run(cmd, capture_output=True, text=True)
+    output = proc.stdout + proc.stderr
+    if proc.returncode != 0 or not tmp.is_file():
+        tmp.unlink(missing_ok=True)
+        m = _PARAM_ERROR.search(output)
+        if m:
+            msg = f"illegal parameter combination for {m.group(1)}: {m.group(2).replace('_', ' ')}"
+        else:
+            msg = "iverilog failed to compile the testbench"
+        raise BenchCompileError(f"{msg}\n{output.strip()}", output)
+    os.replace(tmp, image)
+    (out_dir / "command.txt").write_text(" ".join(cmd) + "\n", encoding="utf-8")
+    return image
+
+
+def run_bench(spec: BlockSpec | Mapping[str, int], folder: str | Path, *,
+              stimulus: str = STIMULUS_FILE, expected: str = EXPECTED_FILE,
+              received: str | Path | None = None, gap_percent: int = 0, stall_percent: int = 0,
+              seed: int = 1, dump: str | Path | None = None, generation: str = "2005",
+              build_root: str | Path | None = None, timeout_cycles: int = 0) -> BenchResult:
+    """Run the pure-Verilog testbench on a folder of stimulus and expected hex files.
+
+    Parameters
+    ----------
+    spec : BlockSpec or mapping of str to int
+        The block spec (mapped by :func:`~hdl_tb.core_params.core_parameters`)
+        or the core parameters themselves.
+    folder : path
+        Folder holding the two hex files.
+    stimulus, expected : str, optional
+        File names inside ``folder`` (stimulus words as
+        :func:`refmodel.word_format.pack_input`, expected words as
+        :func:`refmodel.word_format.pack_output`, one hex word per line).
+    received : path, optional
+        Where the bench writes the received words (default:
+        ``received.hex`` in the compiled image's folder, overwritten by the
+        next run of the same parameters).
+    gap_percent, stall_percent : int, optional
+        Percent of cycles with the input held back (``s_axis_tvalid`` low)
+        and with the output not ready (``m_axis_tready`` low), 0..95.
+    seed : int, optional
+        Seed of the bench's ``$random`` sequences.
+    dump : path, optional
+        Write a VCD waveform to this file.
+    generation : {"2005", "2012"}, optional
+        ``iverilog -g`` flag.
+    build_root : path, optional
+        See :func:`compile_bench`.
+    timeout_cycles : int, optional
+        Cycles before the bench gives up; 0 = its automatic bound.
+
+    Returns
+    -------
+    BenchResult
+
+    Raises
+    ------
+    SpecError
+        Missing simulator, unsupported spec (see ``core_parameters``), a
+        missing hex file, or percentages out of range.
+    BenchCompileError
+        When the bench does not compile.
+    RuntimeError
+        When the simulation ends without its summary line.
+    """
+    params = core_parameters(spec) if isinstance(spec, BlockSpec) else dict(spec)
+    for name, pct in (("gap_percent", gap_percent), ("stall_percent", stall_percent)):
+        if not (isinstance(pct, int) and 0 <= pct <= 95):
+            raise SpecError(name, f"got {pct!r}", "an integer 0..95")
+    folder = Path(folder)
+    stim_path, exp_path = folder / stimulus, folder / expected
+    for what, path in (("stimulus", stim_path), ("expected", exp_path)):
+        if not path.is_file():
+            raise SpecError(what, f"no file {str(path)!r}", "an existing hex file")
+    n_stim = count_hex_words(stim_path)
+    n_exp = count_hex_words(exp_path)
+    depth = max(n for n in (n_stim, n_exp, 1) if n is not None)
+    if n_stim is None or n_exp is None:
+        depth = max(depth, 1 << 20)
+    max_words = 1 << max(0, (depth - 1).bit_length())
+    image = compile_bench(params, max_words=max_words, generation=generation, build_root=build_root)
+    _, vvp = find_tools()
+    received_path = Path(received) if received is not None else image.parent / RECEIVED_FILE
+    args = [vvp, "-n", str(image),
+            f"+STIM_FILE={stim_path.resolve()}", f"+EXPECT_FILE={exp_path.resolve()}",
+            f"+OUT_FILE={received_path.resolve()}", f"+GAP_PERCENT={gap_percent}",
+            f"+STALL_PERCENT={stall_percent}", f"+SEED={int(seed)}", f"+TIMEOUT_CYCLES={int(timeout_cycles)}"]
+    if n_stim is not None and n_stim == n_exp:
+        args.append(f"+N_WORDS={n_stim}")
+    if dump is not None:
+        args += ["+DUMP", f"+DUMP_FILE={Path(dump).resolve()}"]
+    proc = subprocess.run(args, capture_output=True, text=True, cwd=image.parent)
+    log = proc.stdout + proc.stderr
+    found = _SUMMARY.findall(log)
+    if not found:
+        raise RuntimeError(f"the testbench ended without a summary line (exit code {proc.returncode}):\n"
+                           + log[-4000:])
+    verdict, count, first = found[-1]
+    if verdict == "PASS":
+        return BenchResult(True, int(count), 0, None, received_path, log)
+    n_received = count_hex_words(received_path) if received_path.is_file() else 0
+    return BenchResult(False, n_received or 0, int(count), first or None, received_path, log)
