@@ -265,7 +265,8 @@ def _mean_estimate_2d(P, geom, kind, n_band, n_half, range_edge, lag_bad, lead_b
     if kind == "ca":
         s_band = np.maximum(box(0, 0, Wd, Wr) - box(Rd, Rr, 2 * Gd + 1, 2 * Gr + 1), 0.0)
         est = s_band / n_band
-    if kind != "ca" or range_edge == ONE_SIDED:
+    one_sided = range_edge == ONE_SIDED and hr > 0  # hr = 0: the window always fits in range
+    if kind != "ca" or one_sided:
         s_lag = np.maximum(box(0, 0, Wd, hr) - box(Rd, Rr, 2 * Gd + 1, Gr), 0.0)
         s_lead = np.maximum(box(0, hr + 1, Wd, hr) - box(Rd, hr + 1, 2 * Gd + 1, Gr), 0.0)
         mean_lag = s_lag / n_half
@@ -274,7 +275,7 @@ def _mean_estimate_2d(P, geom, kind, n_band, n_half, range_edge, lag_bad, lead_b
         est = np.maximum(mean_lag, mean_lead)
     elif kind == "so":
         est = np.minimum(mean_lag, mean_lead)
-    if range_edge == ONE_SIDED:
+    if one_sided:
         est[..., lag_bad] = mean_lead[..., lag_bad]
         est[..., lead_bad] = mean_lag[..., lead_bad]
     return est
@@ -288,7 +289,7 @@ def _os_estimate_2d(P, geom, k, n_band, n_half, range_edge, lag_bad, lead_bad):
     rows, cols = d_off + hd, r_off + hr  # positions inside the window
     lag_sel, lead_sel = r_off < 0, r_off > 0
     win = sliding_window_view(P, (2 * hd + 1, 2 * hr + 1), axis=(-2, -1))  # (..., D, L, Wd, Wr)
-    one_sided = range_edge == ONE_SIDED
+    one_sided = range_edge == ONE_SIDED and hr > 0  # hr = 0: the window always fits in range
     kh = one_sided_rank(k, n_band, n_half) if one_sided else None
 
     est = np.empty(P.shape[:-2] + (D, L))

@@ -181,6 +181,19 @@ def test_matches_per_cell_reference(kind, range_edge, doppler_edge):
                                 alphas=(1.3,), exact=False)
 
 
+@pytest.mark.filterwarnings("error")
+@pytest.mark.parametrize("range_edge", RANGE_EDGES)
+@pytest.mark.parametrize("kind", ["ca", "os"])
+def test_pure_doppler_band_matches_per_cell_reference(kind, range_edge):
+    # ref_range = guard_range = 0: the window is one range cell wide, always
+    # fits along range, and the (empty) range halves are never used.
+    rng = np.random.default_rng(11)
+    geom = (2, 0, 1, 0, 8, 5)
+    m = rng.integers(0, 5, size=geom[4:]).astype(float)
+    for rank in ([1, 3, 4] if kind == "os" else [None]):
+        _check_2d_against_reference(m, kind, geom, rank, range_edge, "zero-pad")
+
+
 @st.composite
 def cases_2d(draw):
     kind = draw(st.sampled_from(KINDS))
