@@ -15,6 +15,8 @@ import json
 from typing import Callable
 
 from refmodel import threshold_design as td
+from refmodel.block_spec import BlockSpec, load_spec
+from refmodel.errors import SpecError
 
 DEFAULT_SNR_DB = (10.0, 13.0, 16.0)
 DEFAULT_PD = 0.9
@@ -52,10 +54,11 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     )
     p.add_argument("--detector", choices=td.KINDS, default="ca", help="detector kind (default: ca)")
     p.add_argument(
-        "--ref-cells", type=int, required=True, metavar="N", help="total reference cells N, both sides together"
+        "--spec", metavar="FILE", help="block spec (TOML): take the detector from it and add the fixed-point report"
     )
+    p.add_argument("--ref-cells", type=int, metavar="N", help="total reference cells N, both sides together")
     p.add_argument("--rank", type=int, metavar="K", help="rank K in 1..N of the order statistic (os only)")
-    target = p.add_mutually_exclusive_group(required=True)
+    target = p.add_mutually_exclusive_group()
     target.add_argument("--pfa", type=float, metavar="P", help="wanted false-alarm probability, in (0, 1)")
     target.add_argument("--alpha", type=float, metavar="A", help="given threshold factor, > 0")
     p.add_argument(
@@ -100,17 +103,83 @@ def build_report(args: argparse.Namespace) -> dict:
     refmodel.errors.SpecError
         On any out-of-range option.
     """
+    spec = None
+    kind, n_ref, rank, pfa, alpha = args.detector, args.ref_cells, args.rank, args.pfa, args.alpha
+    if args.spec is not None:
+        given = [o for o, v in (("--ref-cells", n_ref), ("--rank", rank), ("--pfa", pfa), ("--alpha", alpha)) if v is not None]
+        if given:
+            raise SpecError(given[0], "given together with --spec", "either --spec FILE or the detector options")
+        spec = load_spec(args.spec)
+        kind, n_ref, rank = spec.kind, spec.n_ref, spec.rank
+        pfa, alpha = (spec.design_pfa, None) if spec.design_pfa is not None else (None, spec.alpha)
+    else:
+        if n_ref is None:
+            raise SpecError("--ref-cells", "missing", "an integer N >= 1 (or --spec FILE)")
+        if pfa is None and alpha is None:
+            raise SpecError("--pfa", "missing (neither --pfa nor --alpha given)", "a number in (0, 1), or --alpha A > 0")
     d = td.design(
-        args.detector,
-        args.ref_cells,
-        pfa=args.pfa,
-        alpha=args.alpha,
-        rank=args.rank,
+        kind,
+        n_ref,
+        pfa=pfa,
+        alpha=alpha,
+        rank=rank,
         snr_db=args.snr_db,
         loss_pd=args.pd,
         swerling=args.swerling if args.swerling else (0, 1),
     )
-    return d.to_dict()
+    report = d.to_dict()
+    if spec is not None:
+        report["fixed"] = fixed_report(spec)
+    return report
+
+
+def fixed_report(spec: BlockSpec) -> dict:
+    """The quantised constant of a block spec and the false-alarm rate it realises.
+
+    Parameters
+    ----------
+    spec : refmodel.block_spec.BlockSpec
+        A validated block spec.
+
+    Returns
+    -------
+    dict
+        Spec source, the exact and quantised constant, its signed digits,
+        the realised alpha and the Pfa it gives by the formulas of
+        :mod:`refmodel.threshold_design`, against the design Pfa, and
+        every derived width (:meth:`BlockSpec.derived`).
+    """
+    design_pfa = spec.design_pfa if spec.design_pfa is not None else td.pfa_from_alpha(
+        spec.kind, spec.n_ref, spec.alpha, spec.rank)
+    realised_pfa = td.pfa_from_alpha(spec.kind, spec.n_ref, spec.realised_alpha, spec.rank)
+    return {
+        "spec": spec.source,
+        "alpha": spec.alpha,
+        "alpha_scaled_exact": spec.alpha_target,
+        "alpha_digits_signed": [[sign, power] for sign, power in spec.alpha_digits],
+        "design_pfa": design_pfa,
+        "realised_pfa": realised_pfa,
+        "realised_over_design_pfa": realised_pfa / design_pfa,
+        **spec.derived(),
+    }
+
+
+def _text_fixed(r: dict) -> list[str]:
+    if "fixed" not in r:
+        return []
+    f = r["fixed"]
+    digits = " ".join(f"{'+' if s > 0 else '-'}2^{p}" for s, p in f["alpha_digits_signed"])
+    return [
+        f"Fixed point ({f['spec']})",
+        f"  constant A        {f['alpha_int']}  ({f['alpha_bits']} bits, exact {f['alpha_scaled_exact']:.6f})",
+        f"  signed digits     {f['alpha_digits']}: {digits}",
+        f"  realised alpha    {f['realised_alpha']:.10g}  (design {f['alpha']:.10g})",
+        f"  realised Pfa      {f['realised_pfa']:.6e}  (design {f['design_pfa']:.6e}, ratio {f['realised_over_design_pfa']:.4f})",
+        f"  widths            side sum {f['side_sum_bits']}, statistic {f['statistic_bits']}, product "
+        f"{f['product_bits']}, threshold {f['threshold_bits']}, output word {f['output_bits']} bits",
+        f"  rounding          drops {f['drop_bits']} bits (mean shift {f['mean_shift']})",
+        f"  timing            latency {f['latency_cycles']} cycles, drain {f['drain_cycles']} cycles per frame",
+    ]
 
 
 def _case_name(sw: int) -> str:
@@ -160,12 +229,12 @@ def _text_loss(r: dict) -> list[str]:
 
 
 #: Text report sections, in order; each maps the report dict to lines.
-TEXT_SECTIONS: list[Callable[[dict], list[str]]] = [_text_threshold, _text_pd, _text_loss]
+TEXT_SECTIONS: list[Callable[[dict], list[str]]] = [_text_threshold, _text_pd, _text_loss, _text_fixed]
 
 
 def format_text(report: dict) -> str:
     """Render a report dictionary as plain text (sections separated by a blank line)."""
-    return "\n\n".join("\n".join(section(report)) for section in TEXT_SECTIONS)
+    return "\n\n".join("\n".join(lines) for lines in (section(report) for section in TEXT_SECTIONS) if lines)
 
 
 def run(args: argparse.Namespace) -> int:
