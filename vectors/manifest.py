@@ -1,0 +1,117 @@
+"""The manifest: ``manifest.json``, the sealed description of one vector set.
+
+It records what the set was made from (the resolved block spec, the vector
+settings, the seed, the tool version), what the words mean (widths and field
+positions, latency) and what the folder holds (per source: frames, samples and
+where they start; per file: name, role, format, word width, line count and
+SHA-256). The field-by-field reference is ``docs/vectors.md``.
+
+The manifest seals itself: ``manifest_sha256`` is the SHA-256 (FIPS 180-4,
+through :mod:`hashlib`) of the canonical JSON of every other field (keys
+sorted, no whitespace, ASCII), so an edit to any field is detected even where
+nothing else depends on it.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from importlib.metadata import PackageNotFoundError, version
+from pathlib import Path
+from typing import Any
+
+from refmodel.block_spec import BlockSpec
+from refmodel.word_format import output_field_offsets
+
+NAME = "manifest.json"
+SET_FORMAT = "cfarvec-vector-set"
+SET_FORMAT_VERSION = 1
+DIGEST_KEY = "manifest_sha256"
+
+
+def tool_version() -> str:
+    """The installed cfarvec version (``"0.0.0+unknown"`` in a bare source tree)."""
+    try:
+        return version("cfarvec")
+    except PackageNotFoundError:
+        return "0.0.0+unknown"
+
+
+def word_layout(spec: BlockSpec) -> dict:
+    """Widths and field positions ``[lsb, width]`` of the stimulus and output words."""
+    return {
+        "stimulus": {"bits": spec.input_word_bits,
+                     "fields": {"sample": [0, spec.input_bits], "last": [spec.input_bits, 1]}},
+        "expected": {"bits": spec.output_bits,
+                     "fields": {k: list(v) for k, v in output_field_offsets(spec).items()}},
+    }
+
+
+def digest(manifest: dict) -> str:
+    """SHA-256 of the canonical JSON of ``manifest`` without its own digest field."""
+    body = {k: v for k, v in manifest.items() if k != DIGEST_KEY}
+    text = json.dumps(body, sort_keys=True, separators=(",", ":"), ensure_ascii=True, allow_nan=False)
+    return hashlib.sha256(text.encode("ascii")).hexdigest()
+
+
+def build_manifest(spec: BlockSpec, settings: dict, sources: list[dict], cases: list[dict],
+                   files: list[dict]) -> dict:
+    """Assemble a sealed manifest.
+
+    Parameters
+    ----------
+    spec : BlockSpec
+        The block the set is for.
+    settings : dict
+        The resolved ``[vectors]`` settings (seed included).
+    sources : list of dict
+        Per source: ``name``, ``frames``, ``samples``, ``first_frame``, ``first_line``.
+    cases : list of dict
+        Per directed case: ``label``, ``first_frame``, ``frames``.
+    files : list of dict
+        Per file: ``name``, ``role``, ``format``, ``word_bits``, ``lines``, ``sha256``.
+
+    Returns
+    -------
+    dict
+        The manifest, ``manifest_sha256`` included.
+    """
+    m: dict[str, Any] = {
+        "format": SET_FORMAT,
+        "format_version": SET_FORMAT_VERSION,
+        "tool_version": tool_version(),
+        "seed": settings["seed"],
+        "spec": spec.to_dict(),
+        "derived": spec.derived(),
+        "latency_cycles": spec.latency_cycles,
+        "words": word_layout(spec),
+        "vectors": settings,
+        "totals": {"frames": sum(s["frames"] for s in sources), "samples": sum(s["samples"] for s in sources)},
+        "sources": sources,
+        "corner_cases": cases,
+        "files": files,
+    }
+    m[DIGEST_KEY] = digest(m)
+    return m
+
+
+def write_manifest(folder: Path, manifest: dict) -> None:
+    """Write ``manifest.json`` (indented, keys sorted, trailing newline)."""
+    text = json.dumps(manifest, indent=2, sort_keys=True, ensure_ascii=True, allow_nan=False) + "\n"
+    (Path(folder) / NAME).write_text(text, encoding="ascii")
+
+
+def read_manifest(folder: Path) -> dict:
+    """Parse ``manifest.json``.
+
+    Raises
+    ------
+    OSError
+        When it cannot be read.
+    ValueError
+        When it is not a JSON object (``json.JSONDecodeError`` is a ``ValueError``).
+    """
+    data = json.loads((Path(folder) / NAME).read_bytes())
+    if not isinstance(data, dict):
+        raise ValueError("not a JSON object")
+    return data

@@ -1,0 +1,420 @@
+"""Build a golden vector set from a block spec: validated settings, streamed, written atomically.
+
+A set is a folder holding the stimulus words, the expected output words the
+bit-accurate model (:mod:`refmodel.pipeline_fast`) gives for them, in one or
+more text formats (:mod:`vectors.writers`), and ``manifest.json``
+(:mod:`vectors.manifest`). The ``[vectors]`` section of the block spec says
+which stimulus sources go in; every field is optional (``docs/vectors.md``
+lists them with their defaults).
+
+Sources, in stream order, each with a fixed child index of the set's
+:class:`numpy.random.SeedSequence` (so adding a source never changes another):
+
+0. ``corner_cases`` - directed frames (:mod:`vectors.corner_cases`, no randomness);
+1. ``scenario`` - noise, targets, clutter edge, spikes (:mod:`vectors.stimulus`);
+2. ``random`` - random frames across the input range (:mod:`vectors.random_frames`).
+
+Generation streams: blocks of whole frames are regrouped into chunks of
+``chunk_samples`` samples, each pushed through the model and appended to
+every file before the next is made, so memory does not grow with the set.
+Everything is written into a temporary folder beside the target, which is
+renamed into place only when complete; any failure (an exception or
+``KeyboardInterrupt``) removes it.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import shutil
+import tempfile
+from dataclasses import asdict, dataclass
+from pathlib import Path
+from typing import Any, Iterator, Mapping
+
+import numpy as np
+
+from refmodel.block_spec import BlockSpec
+from refmodel.errors import SpecError, require
+from refmodel.pipeline_fast import FastPipeline
+from refmodel.word_format import PipelineOutput, pack_input, pack_output
+
+from .corner_cases import corner_case_blocks
+from .manifest import build_manifest, write_manifest
+from .random_frames import random_blocks
+from .stimulus import FrameBlock, Scenario, Target, scenario_blocks
+from .writers import FORMATS, SUFFIX, VectorFileWriter
+
+SOURCES = ("corner_cases", "scenario", "random")
+STIMULUS_COLUMNS = ("frame", "index", "sample", "last")
+EXPECTED_COLUMNS = ("frame", "index", "cut", "threshold", "det", "valid", "last")
+MAX_CHUNK = 1 << 24
+
+_KEYS = ("seed", "include_corner_cases", "scenario_frames", "random_frames", "noise_level_lsb", "targets",
+         "clutter_start_cell", "clutter_to_noise_db", "spikes_per_frame", "random_length_max", "formats",
+         "chunk_samples")
+_TARGET_KEYS = ("cell", "snr_db", "extent", "swerling")
+
+
+@dataclass(frozen=True)
+class VectorSettings:
+    """The resolved ``[vectors]`` section (see ``docs/vectors.md`` for each field)."""
+
+    seed: int
+    include_corner_cases: bool
+    scenario_frames: int
+    random_frames: int
+    noise_level_lsb: float
+    targets: tuple[Target, ...]
+    clutter_start_cell: int
+    clutter_to_noise_db: float
+    spikes_per_frame: int
+    random_length_max: int
+    formats: tuple[str, ...]
+    chunk_samples: int
+
+    def to_dict(self) -> dict:
+        d = asdict(self)
+        d["targets"] = [asdict(t) for t in self.targets]
+        d["formats"] = list(self.formats)
+        return d
+
+
+def default_targets(spec: BlockSpec) -> list[dict]:
+    """Default scenario targets, placed by fractions of the frame length ``L``.
+
+    A point target (Swerling 0, 15 dB) at ``L/8``; a 4-cell extended target
+    (Swerling I, 12 dB) at ``L/4``; two closely spaced targets at ``3L/8`` and
+    ``G + 2`` cells further (inside the first one's reference cells; 13 dB
+    Swerling 0 and 10 dB Swerling I); a Swerling I target of 18 dB just past
+    the clutter edge at ``L/2 + 3``.
+    """
+    L, G = spec.frame_length, spec.guard_per_side
+    raw = [
+        {"cell": L // 8, "snr_db": 15.0, "extent": 1, "swerling": 0},
+        {"cell": L // 4, "snr_db": 12.0, "extent": 4, "swerling": 1},
+        {"cell": 3 * L // 8, "snr_db": 13.0, "extent": 1, "swerling": 0},
+        {"cell": 3 * L // 8 + G + 2, "snr_db": 10.0, "extent": 1, "swerling": 1},
+        {"cell": L // 2 + 3, "snr_db": 18.0, "extent": 1, "swerling": 1},
+    ]
+    return [t for t in raw if t["cell"] < L]
+
+
+def _int(key: str, value: Any, lo: int, hi: int | None = None) -> int:
+    allowed = f"an integer >= {lo}" if hi is None else f"an integer {lo}..{hi}"
+    require(isinstance(value, int) and not isinstance(value, bool), key, f"got {value!r}", allowed)
+    require(value >= lo and (hi is None or value <= hi), key, f"got {value}", allowed)
+    return value
+
+
+def _num(key: str, value: Any, lo: float | None = None, lo_open: bool = False) -> float:
+    ok = isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
+    allowed = "a finite number" + ("" if lo is None else f" {'>' if lo_open else '>='} {lo}")
+    require(ok, key, f"got {value!r}", allowed)
+    require(lo is None or (value > lo if lo_open else value >= lo), key, f"got {value}", allowed)
+    return float(value)
+
+
+def _formats(key: str, value: Any) -> tuple[str, ...]:
+    allowed = 'a list of "hex", "bin", "csv" ("hex" is always written)'
+    require(isinstance(value, (list, tuple)) and all(isinstance(v, str) for v in value), key, f"got {value!r}",
+            allowed)
+    for v in value:
+        require(v in FORMATS, key, f"got {v!r}", allowed)
+    return tuple(f for f in FORMATS if f == "hex" or f in value)
+
+
+def vector_settings(spec: BlockSpec, *, seed: int | None = None, formats=None) -> VectorSettings:
+    """Validate the spec's ``[vectors]`` section and resolve its defaults.
+
+    Parameters
+    ----------
+    spec : BlockSpec
+    seed : int, optional
+        Overrides ``vectors.seed`` (the ``--seed`` option).
+    formats : sequence of str, optional
+        Overrides ``vectors.formats`` (the ``--formats`` option).
+
+    Returns
+    -------
+    VectorSettings
+
+    Raises
+    ------
+    SpecError
+        Naming the first bad field (``vectors.<key>``, ``vectors.targets[i].<key>``,
+        ``--seed`` or ``--formats``).
+    """
+    raw = spec.sections.get("vectors", {})
+    unknown = sorted(set(raw) - set(_KEYS))
+    require(not unknown, f"vectors.{unknown[0] if unknown else ''}", "unknown field", ", ".join(_KEYS))
+    L, W = spec.frame_length, spec.window_length
+    full = (1 << spec.input_bits) - 1
+
+    def get(key, default):
+        return raw.get(key, default)
+
+    s = {}
+    s["seed"] = _int("vectors.seed", get("seed", 1), 0, 2**63 - 1)
+    if seed is not None:
+        s["seed"] = _int("--seed", seed, 0, 2**63 - 1)
+    inc = get("include_corner_cases", True)
+    require(isinstance(inc, bool), "vectors.include_corner_cases", f"got {inc!r}", "true or false")
+    s["include_corner_cases"] = inc
+    s["scenario_frames"] = _int("vectors.scenario_frames", get("scenario_frames", 16), 0)
+    s["random_frames"] = _int("vectors.random_frames", get("random_frames", 16), 0)
+    s["noise_level_lsb"] = _num("vectors.noise_level_lsb", get("noise_level_lsb", 2 ** (spec.input_bits // 2)),
+                                0.0, lo_open=True)
+    require(s["noise_level_lsb"] <= full, "vectors.noise_level_lsb", f"got {s['noise_level_lsb']}",
+            f"a number in (0, {full}] (the input's full scale)")
+    targets = get("targets", None)
+    if targets is None:
+        targets = default_targets(spec)
+    require(isinstance(targets, list), "vectors.targets", f"got {targets!r}", "an array of tables")
+    parsed = []
+    for i, t in enumerate(targets):
+        key = f"vectors.targets[{i}]"
+        require(isinstance(t, Mapping), key, f"got {t!r}", "a table with cell, snr_db, extent, swerling")
+        bad = sorted(set(t) - set(_TARGET_KEYS))
+        require(not bad, f"{key}.{bad[0] if bad else ''}", "unknown field", ", ".join(_TARGET_KEYS))
+        require("cell" in t and "snr_db" in t, key, "needs cell and snr_db", "a table with cell, snr_db")
+        parsed.append(Target(
+            cell=_int(f"{key}.cell", t["cell"], 0, L - 1),
+            snr_db=_num(f"{key}.snr_db", t["snr_db"]),
+            extent=_int(f"{key}.extent", t.get("extent", 1), 1, L),
+            swerling=_int(f"{key}.swerling", t.get("swerling", 0), 0, 1),
+        ))
+        require(parsed[-1].snr_db <= 200.0, f"{key}.snr_db", f"got {parsed[-1].snr_db}", "a number <= 200")
+    s["targets"] = tuple(parsed)
+    s["clutter_start_cell"] = _int("vectors.clutter_start_cell", get("clutter_start_cell", L // 2), 0, L)
+    s["clutter_to_noise_db"] = _num("vectors.clutter_to_noise_db", get("clutter_to_noise_db", 10.0), 0.0)
+    require(s["clutter_to_noise_db"] <= 200.0, "vectors.clutter_to_noise_db", f"got {s['clutter_to_noise_db']}",
+            "a number 0..200")
+    s["spikes_per_frame"] = _int("vectors.spikes_per_frame", get("spikes_per_frame", 1), 0, L)
+    s["random_length_max"] = _int("vectors.random_length_max", get("random_length_max", 2 * L), W, 1 << 24)
+    if formats is not None:
+        s["formats"] = _formats("--formats", list(formats))
+    else:
+        s["formats"] = _formats("vectors.formats", get("formats", ["hex"]))
+    s["chunk_samples"] = _int("vectors.chunk_samples", get("chunk_samples", 1 << 20), 1, MAX_CHUNK)
+    require(s["include_corner_cases"] or s["scenario_frames"] or s["random_frames"], "vectors",
+            "no frames (every source is off)",
+            "include_corner_cases = true, or scenario_frames or random_frames >= 1")
+    return VectorSettings(**s)
+
+
+# --------------------------------------------------------------------------
+# Streaming
+# --------------------------------------------------------------------------
+
+
+def source_blocks(spec: BlockSpec, settings: VectorSettings) -> Iterator[tuple[str, FrameBlock]]:
+    """Every block of the set, in stream order, tagged with its source name."""
+    seqs = dict(zip(SOURCES, np.random.SeedSequence(settings.seed).spawn(len(SOURCES))))
+    if settings.include_corner_cases:
+        for b in corner_case_blocks(spec):
+            yield "corner_cases", b
+    if settings.scenario_frames:
+        sc = Scenario(spec.frame_length, spec.input_bits, settings.noise_level_lsb, settings.targets,
+                      settings.clutter_start_cell, settings.clutter_to_noise_db, settings.spikes_per_frame)
+        for b in scenario_blocks(sc, settings.scenario_frames, seqs["scenario"]):
+            yield "scenario", b
+    if settings.random_frames:
+        for b in random_blocks(settings.random_frames, spec.window_length, settings.random_length_max,
+                               spec.input_bits, seqs["random"]):
+            yield "random", b
+
+
+def rechunk(blocks: Iterator[FrameBlock], size: int) -> Iterator[tuple[np.ndarray, np.ndarray]]:
+    """Regroup blocks into ``(samples, last)`` chunks of exactly ``size`` samples (the final one shorter)."""
+    parts: list[tuple[np.ndarray, np.ndarray]] = []
+    held = 0
+    for b in blocks:
+        s, m = b.samples, b.last
+        while held + s.shape[0] >= size:
+            take = size - held
+            parts.append((s[:take], m[:take]))
+            yield np.concatenate([p[0] for p in parts]), np.concatenate([p[1] for p in parts])
+            s, m = s[take:], m[take:]
+            parts, held = [], 0
+        if s.shape[0]:
+            parts.append((s, m))
+            held += s.shape[0]
+    if held:
+        yield np.concatenate([p[0] for p in parts]), np.concatenate([p[1] for p in parts])
+
+
+class FramePosition:
+    """Frame number and index within the frame of each word of a stream, chunk after chunk."""
+
+    def __init__(self):
+        self.frame, self.index = 0, 0
+
+    def advance(self, last: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """``(frame, index)`` arrays for the next words, whose last markers are ``last``."""
+        n = last.shape[0]
+        pos = np.arange(n, dtype=np.int64)
+        begins = np.zeros(n, dtype=bool)
+        begins[1:] = last[:-1]
+        start = np.maximum.accumulate(np.where(begins, pos, -self.index))
+        frame = self.frame + np.cumsum(begins)
+        if n:
+            self.frame = int(frame[-1]) + int(last[-1])
+            self.index = 0 if last[-1] else int(n - start[-1])
+        return frame, pos - start
+
+
+class _Files:
+    """The data files of a set being written: one writer per (role, format)."""
+
+    def __init__(self, folder: Path, spec: BlockSpec, formats: tuple[str, ...]):
+        self.writers: list[VectorFileWriter] = []
+        self.by_role: dict[str, list[VectorFileWriter]] = {"stimulus": [], "expected": []}
+        bits = {"stimulus": spec.input_word_bits, "expected": spec.output_bits}
+        header = {"stimulus": STIMULUS_COLUMNS, "expected": EXPECTED_COLUMNS}
+        try:
+            for role in ("stimulus", "expected"):
+                for fmt in formats:
+                    w = VectorFileWriter(folder / f"{role}{SUFFIX[fmt]}", role, fmt, bits[role], header[role])
+                    self.writers.append(w)
+                    self.by_role[role].append(w)
+        except BaseException:
+            self.abort()
+            raise
+        self.pos = {"stimulus": FramePosition(), "expected": FramePosition()}
+
+    def write(self, role: str, words: np.ndarray, fields: list[np.ndarray], last: np.ndarray) -> None:
+        csv = [w for w in self.by_role[role] if w.fmt == "csv"]
+        cols = list(self.pos[role].advance(last)) + fields if csv else []
+        for w in self.by_role[role]:
+            w.write(words, cols)
+
+    def close(self) -> list[dict]:
+        return [w.close().to_dict() for w in self.writers]
+
+    def abort(self) -> None:
+        for w in self.writers:
+            w.abort()
+
+
+class _Tally:
+    """Per-source frame and sample counts and the directed cases' frame ranges."""
+
+    def __init__(self):
+        self.sources: list[dict] = []
+        self.cases: list[dict] = []
+        self.frames = self.samples = 0
+
+    def blocks(self, tagged: Iterator[tuple[str, FrameBlock]]) -> Iterator[FrameBlock]:
+        for name, b in tagged:
+            if not self.sources or self.sources[-1]["name"] != name:
+                self.sources.append({"name": name, "frames": 0, "samples": 0, "first_frame": self.frames,
+                                     "first_line": self.samples + 1})
+            n_frames, n_samples = int(b.lengths.shape[0]), int(b.samples.shape[0])
+            if b.label:
+                self.cases.append({"label": b.label, "first_frame": self.frames, "frames": n_frames})
+            self.sources[-1]["frames"] += n_frames
+            self.sources[-1]["samples"] += n_samples
+            self.frames += n_frames
+            self.samples += n_samples
+            yield b
+
+
+def _generate(spec: BlockSpec, settings: VectorSettings, folder: Path) -> dict:
+    files = _Files(folder, spec, settings.formats)
+    tally = _Tally()
+    try:
+        pipe = FastPipeline(spec)
+
+        def emit(out: PipelineOutput) -> None:
+            if len(out):
+                fields = [out.cut, out.threshold, out.det, out.valid, out.last]
+                files.write("expected", pack_output(spec, out), fields, out.last)
+
+        for samples, last in rechunk(tally.blocks(source_blocks(spec, settings)), settings.chunk_samples):
+            files.write("stimulus", pack_input(spec, samples, last), [samples, last], last)
+            emit(pipe.push(samples, last))
+        emit(pipe.finish())
+        records = files.close()
+    except BaseException:
+        files.abort()
+        raise
+    manifest = build_manifest(spec, settings.to_dict(), tally.sources, tally.cases, records)
+    write_manifest(folder, manifest)
+    return manifest
+
+
+def _prepare_target(out: Path, force: bool) -> None:
+    if out.exists() or out.is_symlink():
+        require(out.is_dir() and not out.is_symlink(), "--output", f"{str(out)!r} exists and is not a folder",
+                "a new or empty folder, or an existing set folder with --force")
+        if any(out.iterdir()):
+            require(force, "--output", f"{str(out)!r} exists and is not empty",
+                    "a new or empty folder, or --force to replace it")
+
+
+def _move_into_place(tmp: Path, out: Path) -> None:
+    if out.exists() and any(out.iterdir()):
+        old = Path(tempfile.mkdtemp(prefix=f".{out.name}.old-", dir=out.parent))
+        os.replace(out, old / "set")
+        try:
+            os.replace(tmp, out)
+        except BaseException:
+            os.replace(old / "set", out)
+            shutil.rmtree(old, ignore_errors=True)
+            raise
+        shutil.rmtree(old, ignore_errors=True)
+    else:
+        os.replace(tmp, out)  # an empty existing folder is replaced by the rename itself
+
+
+def write_vector_set(spec: BlockSpec, output: str | Path, *, seed: int | None = None, formats=None,
+                     force: bool = False) -> dict:
+    """Generate a vector set into the folder ``output``.
+
+    Parameters
+    ----------
+    spec : BlockSpec
+        The block; its ``[vectors]`` section selects the sources.
+    output : str or pathlib.Path
+        Target folder. It must not exist, or be empty, unless ``force``.
+        Missing parent folders are created.
+    seed : int, optional
+        Overrides ``vectors.seed``.
+    formats : sequence of str, optional
+        Overrides ``vectors.formats``; ``"hex"`` is always written.
+    force : bool
+        Replace an existing non-empty folder (only once the new set is complete).
+
+    Returns
+    -------
+    dict
+        The manifest that was written.
+
+    Raises
+    ------
+    SpecError
+        For bad settings or an unusable target (nothing is written).
+    OSError
+        When writing fails (nothing is left behind).
+    """
+    settings = vector_settings(spec, seed=seed, formats=formats)
+    out = Path(output).absolute()
+    _prepare_target(out, force)
+    try:
+        out.parent.mkdir(parents=True, exist_ok=True)
+        tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.partial-", dir=out.parent))
+    except OSError as exc:
+        raise SpecError("--output", f"cannot create a folder in {str(out.parent)!r} ({exc.strerror})",
+                        "a path whose parent is, or can be made, a writable folder") from None
+    try:
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o777 & ~umask)  # mkdtemp makes it private; a set folder is an ordinary folder
+        manifest = _generate(spec, settings, tmp)
+        _prepare_target(out, force)  # it may have appeared meanwhile
+        _move_into_place(tmp, out)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    return manifest
