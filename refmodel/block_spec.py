@@ -16,13 +16,14 @@ from __future__ import annotations
 
 import math
 import tomllib
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from types import MappingProxyType
 from typing import Any, Mapping
 
 from .errors import SpecError, require
-from .fixed_arith import OVERFLOW_MODES, ROUNDING_MODES, naf_digits, quantise_constant, scale_product
+from .fixed_arith import (OVERFLOW_MODES, ROUNDING_MODES, apply_overflow, naf_digits, quantise_constant,
+                          scale_product)
 
 KINDS = ("ca", "go", "so", "os")
 EDGES = ("skip", "zero-pad", "one-sided", "circular")
@@ -286,8 +287,6 @@ class BlockSpec:
 
         See ``docs/bit-true.md`` steps 5 and 6.
         """
-        from .fixed_arith import apply_overflow
-
         t = scale_product(s, self.alpha_int, self.drop_bits, self.rounding, self.truncate_partials)
         return apply_overflow(t, self.threshold_bits, self.overflow)
 
@@ -450,12 +449,6 @@ def spec_from_dict(data: Mapping[str, Any], source: str | None = None) -> BlockS
     auto_t = max(1, int(t_max).bit_length())
     w_t = fx["threshold_bits"]
     w_t = auto_t if w_t is None else _int("fixed", "threshold_bits", w_t, 1, 62)
-    return _replace_threshold_bits(spec, w_t)
-
-
-def _replace_threshold_bits(spec: BlockSpec, w_t: int) -> BlockSpec:
-    from dataclasses import replace
-
     return replace(spec, threshold_bits=w_t)
 
 
