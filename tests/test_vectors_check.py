@@ -177,3 +177,14 @@ def test_cli_exit_codes_and_one_line(pristine, tmp_path):
     first = r.findings[0]
     assert (first.file, first.line, first.field) == ("expected.hex", 101, "cut")
     assert first.frame is not None and first.index is not None
+
+
+def test_set_from_a_design_pfa_spec_checks(tmp_path):
+    """A spec that gives design_pfa records both it and the derived alpha; the check still rebuilds it."""
+    d = load_spec(SMALL).to_dict()
+    del d["detector"]["alpha"]
+    d["detector"]["design_pfa"] = 1e-4
+    d["vectors"].update(scenario_frames=2, random_frames=1, include_corner_cases=False, formats=["hex"])
+    write_vector_set(spec_from_dict(d), tmp_path / "set")
+    r = check_vector_set(tmp_path / "set")
+    assert r.ok, r.summary()
