@@ -11,7 +11,6 @@ The block spec is an invented scenario: a made-up ridge-top radar's range line.
 
 from __future__ import annotations
 
-import io
 import json
 import os
 import subprocess
