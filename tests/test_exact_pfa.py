@@ -1,0 +1,382 @@
+"""Exact Pfa of the fixed pipeline, its input law and its Monte Carlo check.
+
+Every expectation comes from outside the code under test:
+
+- the input word law from scipy.stats (geometric, exponential, non-central
+  chi-square laws);
+- sums of input words from scipy.stats.nbinom (a sum of n independent
+  geometric counts is negative binomial: N. L. Johnson, A. W. Kemp and
+  S. Kotz, *Univariate Discrete Distributions*, 3rd ed., Wiley, 2005,
+  sec. 5.1, "from memory" for the section number);
+- small cases by brute-force enumeration of every reference-cell
+  configuration with the decision written out as in docs/bit-true.md;
+- the float limit from Finn & Johnson 1968 / Richards 2005 ch. 7 (CA),
+  Weiss 1982 / Gandhi & Kassam 1988 (GO/SO), Rohling 1983 (OS), as
+  implemented and tested in refmodel.threshold_design;
+- Monte Carlo counts with Clopper-Pearson 99.9% intervals (Clopper &
+  Pearson, Biometrika 26(4), 1934) and fixed seeds; the Monte Carlo kernel is
+  first shown equal, word for word, to the pipeline models.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+
+import numpy as np
+import pytest
+from hypothesis import given
+from hypothesis import strategies as st
+from scipy import stats
+
+from pipeline_cases import block_specs, hyp_settings
+from refmodel import exact_pfa as ep
+from refmodel import input_quantiser as iq
+from refmodel import threshold_design as td
+from refmodel import window_trials as wt
+from refmodel.block_spec import spec_from_dict
+from refmodel.pipeline_struct import run_structural
+
+CONF = 0.999
+
+
+def make_spec(kind="ca", r=4, g=1, pfa=1e-4, rank=None, **fixed):
+    det = {"kind": kind, "ref_cells_per_side": r, "guard_cells_per_side": g, "design_pfa": pfa}
+    if rank is not None:
+        det["rank"] = rank
+    fx = {"input_bits": 12, "alpha_frac_bits": 12, "threshold_frac_bits": 2, "rounding": "half-up"}
+    fx.update(fixed)
+    return spec_from_dict({"detector": det, "fixed": fx})
+
+
+# --------------------------------------------------------------------------
+# Input word law
+# --------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("mu,bits", [(0.3, 4), (2.0, 6), (37.5, 8), (1000.0, 12)])
+def test_noise_word_is_clipped_geometric(mu, bits):
+    """floor(exponential) is geometric (scipy.stats.geom, support shifted to 0); the top word takes expon.sf(top)."""
+    top = (1 << bits) - 1
+    pmf, dropped = iq.noise_pmf(mu, bits)
+    k = np.arange(top)
+    want = stats.geom.pmf(k + 1, -math.expm1(-1.0 / mu))
+    np.testing.assert_allclose(pmf[:-1], want, rtol=1e-12, atol=0)
+    assert pmf[-1] == pytest.approx(stats.expon.sf(top, scale=mu), rel=1e-12)
+    assert dropped == 0.0
+    assert pmf.sum() == pytest.approx(1.0, abs=1e-13)
+
+
+def test_truncated_noise_law_states_its_dropped_mass():
+    """Mass above K is exactly expon.sf(K + 1) (scipy.stats.expon)."""
+    pmf, dropped = iq.noise_pmf(10.0, 16, k_max=200)
+    assert pmf.size == 201
+    assert dropped == pytest.approx(stats.expon.sf(201, scale=10.0), rel=1e-12)
+    assert pmf.sum() + dropped == pytest.approx(1.0, abs=1e-14)
+
+
+@pytest.mark.parametrize("snr", [0.5, 10.0, 100.0])
+def test_target_word_laws_from_scipy(snr):
+    """Swerling I: expon(scale=m(1+snr)); Swerling 0: 2y/m ~ ncx2(2, 2 snr) (Marcum 1960; Swerling 1960)."""
+    mu, bits = 8.0, 10
+    top = (1 << bits) - 1
+    c = np.arange(0, top + 2)
+    sf1 = iq.word_sf(c, mu, bits, snr, 1)
+    sf0 = iq.word_sf(c, mu, bits, snr, 0)
+    mid = c[1 : top + 1]
+    np.testing.assert_allclose(sf1[1 : top + 1], stats.expon.sf(mid, scale=mu * (1 + snr)), rtol=1e-12)
+    np.testing.assert_allclose(sf0[1 : top + 1], stats.ncx2.sf(2 * mid / mu, 2, 2 * snr), rtol=1e-12)
+    assert sf0[0] == sf1[0] == 1.0 and sf0[-1] == sf1[-1] == 0.0
+    pmf0 = iq.word_pmf(mu, bits, snr, 0)
+    assert pmf0.sum() == pytest.approx(1.0, abs=1e-12)
+    assert pmf0[-1] == pytest.approx(stats.ncx2.sf(2 * top / mu, 2, 2 * snr), abs=1e-15)
+
+
+@pytest.mark.parametrize("mu,snr", [(100.0, 0.3), (256.0, 10.0), (5000.0, 40.0)])
+def test_hermite_swerling0_survival_within_stated_error(mu, snr):
+    """Interpolated Marcum Q against scipy.stats.ncx2.sf at every word: within 4e-8 (docstring bound)."""
+    c = np.arange(0, int(mu * (40 + 3 * snr)))
+    exact = stats.ncx2.sf(2 * c / mu, 2, 2 * snr)
+    got = iq.word_sf_smooth(c, mu, 24, snr, 0)
+    assert np.abs(got[1:] - exact[1:]).max() < 4e-8
+
+
+def test_quantise_power_floors_and_clips():
+    """Convention: min(floor(y), 2^W - 1) (common practice, no source: ADC-like truncation)."""
+    y = np.array([0.0, 0.999, 1.0, 14.5, 15.0, 15.99, 16.0, 1e9])
+    assert iq.quantise_power(y, 4).tolist() == [0, 0, 1, 14, 15, 15, 15, 15]
+
+
+# --------------------------------------------------------------------------
+# Law of the statistic
+# --------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("direct", [True, False])
+def test_ca_statistic_law_is_negative_binomial(monkeypatch, direct):
+    """Unclipped geometric cells: S ~ nbinom(2R, 1 - exp(-1/m)) (Johnson, Kemp & Kotz 2005), in the tails too."""
+    monkeypatch.setattr(ep, "DIRECT_MAX", 10**12 if direct else 0)
+    spec = make_spec("ca", r=4, input_bits=24, pfa=1e-9)
+    mu = 30.0
+    p, err, dropped = ep.statistic_law(spec, mu, 1e-9)
+    s = np.arange(p.size)
+    want = stats.nbinom.pmf(s, 8, -math.expm1(-1.0 / mu))
+    k_max = (p.size - 1) // 8  # largest word kept; sums up to it miss no configuration
+    inside = s <= k_max
+    assert np.all(np.abs(p - want)[inside] <= err[inside] + 1e-12 * want[inside] + 1e-300)
+    # Above it, what is missing is at most the stated dropped mass.
+    assert float(np.sum(want[~inside] - p[~inside])) <= dropped + 1e-15
+    assert dropped < 1e-20
+    # Where the false alarms come from (small sums) the relative error is tiny.
+    low = s < 8 * mu / 2
+    np.testing.assert_allclose(p[low], want[low], rtol=1e-9)
+
+
+@pytest.mark.parametrize("kind", ["go", "so"])
+def test_go_so_statistic_law_from_side_cdfs(kind):
+    """max/min of two independent nbinom(R) side sums: P(max<=s) = F(s)^2, P(min>=s) = G(s)^2 (scipy.stats.nbinom)."""
+    spec = make_spec(kind, r=3, input_bits=24, pfa=1e-6)
+    mu = 12.0
+    p, err, _ = ep.statistic_law(spec, mu, 1e-6)
+    s = np.arange(p.size)
+    q = -math.expm1(-1.0 / mu)
+    # Differences of squares written as (a - b)(a + b) to keep scipy's tail accuracy.
+    pmf = stats.nbinom.pmf(s, 3, q)
+    if kind == "go":
+        want = pmf * (stats.nbinom.cdf(s, 3, q) + stats.nbinom.cdf(s - 1, 3, q))
+    else:
+        want = pmf * (stats.nbinom.sf(s - 1, 3, q) + stats.nbinom.sf(s, 3, q))
+    big = want > 1e-12
+    np.testing.assert_allclose(p[big], want[big], rtol=1e-8)
+    assert np.all(err >= 0)
+
+
+def _brute_force_pfa(spec, mu):
+    """Enumerate every reference configuration; decide as docs/bit-true.md sections 3-7 say, written out here."""
+    bits = spec.input_bits
+    top = (1 << bits) - 1
+    k = np.arange(top + 1)
+    pmf = stats.expon.cdf(k + 1, scale=mu) - stats.expon.cdf(k, scale=mu)
+    pmf[-1] = stats.expon.sf(top, scale=mu)
+    r = spec.ref_per_side
+    total = 0.0
+    for cells in itertools.product(range(top + 1), repeat=2 * r):
+        lag, lead = sum(cells[:r]), sum(cells[r:])
+        if spec.kind == "ca":
+            s = lag + lead
+        elif spec.kind == "go":
+            s = max(lag, lead)
+        elif spec.kind == "so":
+            s = min(lag, lead)
+        else:
+            s = sorted(cells)[spec.rank - 1]
+        t = int(spec.threshold_from_statistic(s))
+        f = spec.threshold_frac_bits
+        hit = [(c << f) > t if spec.compare == ">" else (c << f) >= t for c in range(top + 1)]
+        p_cut = float(pmf[np.array(hit)].sum())
+        total += float(np.prod(pmf[list(cells)])) * p_cut
+    return total
+
+
+@pytest.mark.parametrize(
+    "kind,rank,fixed",
+    [
+        ("ca", None, {"rounding": "floor", "threshold_frac_bits": 1}),
+        ("go", None, {"rounding": "half-even", "compare_ge": True}),
+        ("so", None, {"alpha_csd_digits": 2, "rounding": "half-up"}),
+        ("os", 3, {"threshold_frac_bits": 0}),
+        ("ca", None, {"threshold_bits": 5, "overflow": "wrap"}),
+    ],
+)
+def test_exact_pfa_equals_brute_force(kind, rank, fixed):
+    """Four 3-bit cells: all 4096 configurations enumerated (common practice, no source)."""
+    fixed = dict(fixed)
+    compare = ">=" if fixed.pop("compare_ge", False) else ">"
+    det = {"kind": kind, "ref_cells_per_side": 2, "guard_cells_per_side": 0, "design_pfa": 0.05, "compare": compare}
+    if rank:
+        det["rank"] = rank
+    fx = {"input_bits": 3, "alpha_frac_bits": 8, "threshold_frac_bits": 2, "rounding": "half-up", **fixed}
+    spec = spec_from_dict({"detector": det, "fixed": fx})
+    mu = 1.7
+    law = ep.trigger_law(spec, mu)
+    want = _brute_force_pfa(spec, mu)
+    assert law.pfa() == pytest.approx(want, rel=1e-12)
+    assert law.dropped == 0.0
+
+
+@pytest.mark.parametrize("kind,bits,mu", [("ca", 10, 24.0), ("go", 10, 24.0), ("so", 12, 300.0)])
+def test_fft_path_within_its_bound_at_pfa_1e9(monkeypatch, kind, bits, mu):
+    """FFT with exponential tilting against direct (relatively exact) convolution, design Pfa 1e-9.
+
+    Direct sums of non-negative terms have element-wise relative error below
+    (m+1)u (N. J. Higham, Accuracy and Stability of Numerical Algorithms,
+    2nd ed., SIAM, 2002, sec. 4.2); the FFT result must lie within its stated
+    bound, and that bound must be below 1e-6 relative.
+    """
+    # SO needs a finer noise level: its all-zero sides put a Pfa floor near 2 (1/m)^R.
+    spec = make_spec(kind, r=4, pfa=1e-9, input_bits=bits)
+    monkeypatch.setattr(ep, "DIRECT_MAX", 10**12)
+    ref = ep.trigger_law(spec, mu)
+    monkeypatch.setattr(ep, "DIRECT_MAX", 0)
+    fft = ep.trigger_law(spec, mu)
+    assert 1e-11 < ref.pfa() < 1e-7
+    assert abs(fft.pfa() - ref.pfa()) <= fft.pfa_error_bound() + ref.pfa_error_bound()
+    assert fft.pfa_error_bound() < 1e-6 * fft.pfa()
+    assert abs(fft.pfa() / ref.pfa() - 1) < 1e-9
+
+
+# --------------------------------------------------------------------------
+# Float limit
+# --------------------------------------------------------------------------
+
+
+def test_ca_converges_to_finn_johnson_formula():
+    """24-bit input, 16 alpha fraction bits, noise 2^13 LSB: Pfa -> (1 + alpha/N)^-N.
+
+    Finn & Johnson, RCA Review 29(3), 1968; Richards, Fundamentals of Radar
+    Signal Processing, 2005, ch. 7. Evaluated independently here at the
+    realised alpha; the quantisation error must shrink as the noise level
+    ``m`` in LSBs grows, as 1/m: flooring removes about half an LSB from the
+    CUT and from every reference cell, which lowers the threshold by about
+    ``(alpha - 1) / 2`` LSBs and multiplies an exponential tail by about
+    ``1 + (alpha - 1) / (2 m)`` (first-order derivation, no source).
+    """
+    spec = make_spec("ca", r=4, pfa=1e-6, input_bits=24, alpha_frac_bits=16, threshold_frac_bits=8)
+    n, a = 8, spec.realised_alpha
+    formula = (1.0 + a / n) ** (-n)
+    errs = []
+    mus = (2.0**6, 2.0**9, 2.0**13)
+    for mu in mus:
+        errs.append(abs(ep.trigger_law(spec, mu).pfa() / formula - 1))
+    assert errs[0] > errs[1] > errs[2]
+    assert errs[2] < 2.5e-3
+    first_order = (a - 1) / 2
+    for mu, e in zip(mus[1:], errs[1:]):
+        assert e * mu == pytest.approx(first_order, rel=0.05)
+    assert abs(formula / 1e-6 - 1) < 1e-3  # 16 fraction bits keep alpha itself close
+
+
+@pytest.mark.parametrize("kind,rank", [("go", None), ("so", None), ("os", 6)])
+def test_go_so_os_converge_to_float_formulas(kind, rank):
+    """GO/SO: Hansen & Sawyers 1980, Weiss 1982, Gandhi & Kassam 1988; OS: Rohling 1983 (via threshold_design).
+
+    The error shrinks as 1/m (8 times the noise level: at least 5 times smaller)
+    and is below 1.5% at 2^12 LSBs.
+    """
+    spec = make_spec(kind, r=4, pfa=1e-5, rank=rank, input_bits=24, alpha_frac_bits=16, threshold_frac_bits=8)
+    formula = td.pfa_from_alpha(kind, 8, spec.realised_alpha, rank)
+    coarse = abs(ep.trigger_law(spec, 2.0**9).pfa() / formula - 1)
+    fine = abs(ep.trigger_law(spec, 2.0**12).pfa() / formula - 1)
+    assert fine < coarse / 5
+    assert fine < 0.015
+
+
+# --------------------------------------------------------------------------
+# Monte Carlo kernel == pipeline, then Monte Carlo == exact
+# --------------------------------------------------------------------------
+
+
+def _frames(spec, rng, n_frames=3):
+    top = (1 << spec.input_bits) - 1
+    lengths = rng.integers(spec.window_length, spec.window_length + 40, n_frames)
+    x = rng.integers(0, top + 1, int(lengths.sum()))
+    # Some full-scale and zero runs so that sums, saturation and wrap are exercised.
+    x[rng.random(x.size) < 0.1] = top
+    x[rng.random(x.size) < 0.1] = 0
+    last = np.zeros(x.size, bool)
+    last[np.cumsum(lengths) - 1] = True
+    return x, last
+
+
+@hyp_settings(ci=60, long=1000)
+@given(spec=block_specs(max_input_bits=12), seed=st.integers(0, 2**32 - 1))
+def test_kernel_equals_fast_pipeline_word_for_word(spec, seed):
+    """The trial kernel's threshold and decision equal refmodel.pipeline_fast's at every interior CUT."""
+    pipeline_fast = pytest.importorskip("refmodel.pipeline_fast")
+    x, last = _frames(spec, np.random.default_rng(seed))
+    out = pipeline_fast.run_fast(spec, x, last)
+    idx, cut, ref = wt.interior_windows(spec, x, last)
+    assert np.array_equal(out.valid, np.isin(np.arange(x.size), idx))
+    _, t, det = wt.window_decisions(spec, cut, ref)
+    assert np.array_equal(t, out.threshold[idx])
+    assert np.array_equal(det, out.det[idx])
+    # Float-held words (as the Monte Carlo uses them) decide the same.
+    _, t2, det2 = wt.window_decisions(spec, cut.astype(float), ref.astype(float))
+    assert np.array_equal(t2, t) and np.array_equal(det2, det)
+
+
+@pytest.mark.parametrize("kind,rank", [("ca", None), ("go", None), ("so", None), ("os", 5)])
+def test_kernel_equals_structural_pipeline(kind, rank):
+    """Same check against the cycle-stepped model (the executable bit-true spec), one spec per kind."""
+    spec = make_spec(kind, r=3, g=1, rank=rank, input_bits=6, alpha_frac_bits=9, threshold_frac_bits=3,
+                     rounding="half-even")
+    x, last = _frames(spec, np.random.default_rng(7), n_frames=2)
+    out = run_structural(spec, x, last)
+    idx, cut, ref = wt.interior_windows(spec, x, last)
+    _, t, det = wt.window_decisions(spec, cut, ref)
+    assert np.array_equal(t, out.threshold[idx]) and np.array_equal(det, out.det[idx])
+
+
+MC_CASES = [
+    # kind, rank, design Pfa, input bits, noise LSB, extra fixed fields, float formula must be outside the CI
+    ("ca", None, 1e-3, 6, 2.0, {"rounding": "floor", "threshold_frac_bits": 0}, True),
+    ("ca", None, 1e-3, 12, 64.0, {"alpha_csd_digits": 2}, False),
+    ("go", None, 1e-3, 8, 4.0, {}, True),
+    ("so", None, 1e-3, 10, 16.0, {"rounding": "half-even"}, False),
+    ("os", 6, 1e-3, 8, 3.0, {}, True),
+]
+
+
+@pytest.mark.parametrize("kind,rank,pfa,bits,mu,fixed,visible", MC_CASES)
+def test_exact_pfa_inside_monte_carlo_interval(kind, rank, pfa, bits, mu, fixed, visible):
+    """Exact Pfa inside the 99.9% Clopper-Pearson interval of 300000 kernel trials (fixed seed).
+
+    Where the quantisation is coarse (``visible``) the float formula at the
+    design alpha lies outside the same interval.
+    """
+    spec = make_spec(kind, r=4, pfa=pfa, rank=rank, input_bits=bits, **fixed)
+    exact = ep.trigger_law(spec, mu).pfa()
+    rng = np.random.default_rng(np.random.SeedSequence(20261202, spawn_key=(bits, int(mu))))
+    mc = wt.run_trials(spec, mu, 300_000, rng)
+    lo, hi = wt.clopper_pearson(mc.detections, mc.trials, CONF)
+    assert lo <= exact <= hi, (mc.detections, lo, exact, hi)
+    if visible:
+        assert not lo <= pfa <= hi, (lo, pfa, hi)
+
+
+def test_six_bit_example_differs_visibly_from_float():
+    """Coarse 6-bit CA, noise at 2 LSB: exact and Monte Carlo agree, the float formula is far off."""
+    spec = make_spec("ca", r=4, pfa=1e-3, input_bits=6, rounding="floor", threshold_frac_bits=0)
+    exact = ep.trigger_law(spec, 2.0).pfa()
+    formula = td.pfa_from_alpha("ca", 8, spec.realised_alpha)
+    assert exact / formula > 1.5 or exact / formula < 1 / 1.5
+
+
+def test_saturation_and_clipping_rates_match_monte_carlo():
+    """A narrow saturating threshold: exact saturation rate inside the MC interval; clipping = expon.sf(2^W)."""
+    spec = make_spec("ca", r=4, pfa=1e-3, input_bits=8, threshold_bits=9, threshold_frac_bits=0,
+                     overflow="saturate")
+    mu = 20.0
+    law = ep.trigger_law(spec, mu)
+    assert 1e-3 < law.saturation < 0.5
+    mc = wt.run_trials(spec, mu, 100_000, np.random.default_rng(3))
+    lo, hi = wt.clopper_pearson(mc.saturated, mc.trials, CONF)
+    assert lo <= law.saturation <= hi
+    assert iq.clip_rate(mu, 8) == pytest.approx(stats.expon.sf(256, scale=mu), rel=1e-12)
+    lo, hi = wt.clopper_pearson(mc.clipped, mc.trials * 9, CONF)
+    assert lo <= iq.clip_rate(mu, 8) <= hi
+
+
+def test_exact_pd_inside_monte_carlo_interval():
+    """Pd of a Swerling I target, coarse CA: exact (equation 1) against Monte Carlo of the kernel."""
+    spec = make_spec("ca", r=4, pfa=1e-3, input_bits=8, threshold_frac_bits=1)
+    mu, snr_db = 3.0, 10.0
+    law = ep.trigger_law(spec, mu)
+    rng = np.random.default_rng(11)
+    n = 100_000
+    y = rng.standard_exponential((n, 9)) * mu
+    y[:, 0] *= 1 + 10 ** (snr_db / 10)
+    w = iq.quantise_power(y, 8)
+    _, _, det = wt.window_decisions(spec, w[:, 0], w[:, 1:])
+    lo, hi = wt.clopper_pearson(int(det.sum()), n, CONF)
+    assert lo <= law.pd(snr_db, 1) <= hi
