@@ -314,19 +314,21 @@ class BlockSpec:
         return s * da + r + 1e-9 * (1.0 + s)
 
     def to_dict(self) -> dict:
-        """The spec as plain TOML-able sections (resolved values, downstream sections included)."""
+        """The spec as plain TOML-able sections that :func:`spec_from_dict` reads back to an equal spec."""
         det = {
             "kind": self.kind,
             "ref_cells_per_side": self.ref_per_side,
             "guard_cells_per_side": self.guard_per_side,
             "compare": self.compare,
             "edge": self.edge,
-            "alpha": self.alpha,
         }
         if self.rank is not None:
             det["rank"] = self.rank
+        # Exactly one of the two, as the spec file had it, so the dict loads again.
         if self.design_pfa is not None:
             det["design_pfa"] = self.design_pfa
+        else:
+            det["alpha"] = self.alpha
         fixed = {k: getattr(self, k) for k in _FIXED_KEYS}
         stream = {k: getattr(self, k) for k in _STREAM_KEYS}
         return {"detector": det, "fixed": fixed, "stream": stream, **{k: dict(v) for k, v in self.sections.items()}}
