@@ -22,19 +22,20 @@ from __future__ import annotations
 
 import itertools
 import math
+import os
 
 import numpy as np
 import pytest
-from hypothesis import given
+from hypothesis import HealthCheck, given, reject, settings
 from hypothesis import strategies as st
 from scipy import stats
 
-from pipeline_cases import block_specs, hyp_settings
 from refmodel import exact_pfa as ep
 from refmodel import input_quantiser as iq
 from refmodel import threshold_design as td
 from refmodel import window_trials as wt
 from refmodel.block_spec import spec_from_dict
+from refmodel.errors import SpecError
 from refmodel.pipeline_struct import run_structural
 
 CONF = 0.999
@@ -288,8 +289,38 @@ def _frames(spec, rng, n_frames=3):
     return x, last
 
 
-@hyp_settings(ci=60, long=1000)
-@given(spec=block_specs(max_input_bits=12), seed=st.integers(0, 2**32 - 1))
+LONG = os.environ.get("CFARVEC_LONG") == "1"
+
+
+@st.composite
+def block_specs(draw):
+    """Any detector kind and arithmetic option, including narrow saturating or wrapping thresholds."""
+    kind = draw(st.sampled_from(["ca", "go", "so", "os"]))
+    r = draw(st.integers(1, 6))
+    det = {"kind": kind, "ref_cells_per_side": r, "guard_cells_per_side": draw(st.integers(0, 3)),
+           "compare": draw(st.sampled_from([">", ">="])), "alpha": draw(st.floats(0.5, 30.0))}
+    if kind == "os":
+        det["rank"] = draw(st.integers(1, 2 * r))
+    f_a = draw(st.integers(4, 16))
+    truncate = draw(st.booleans())
+    fixed = {"input_bits": draw(st.integers(1, 12)), "alpha_frac_bits": f_a,
+             "alpha_csd_digits": draw(st.sampled_from([0, 0, 1, 2, 3])), "truncate_partials": truncate,
+             "threshold_frac_bits": draw(st.integers(0, f_a)),
+             "rounding": "floor" if truncate else draw(st.sampled_from(["floor", "half-up", "half-even"])),
+             "overflow": draw(st.sampled_from(["saturate", "wrap"]))}
+    try:
+        spec = spec_from_dict({"detector": det, "fixed": fixed})
+        if draw(st.booleans()):
+            fixed["threshold_bits"] = draw(st.integers(1, spec.threshold_bits))
+            spec = spec_from_dict({"detector": det, "fixed": fixed})
+    except SpecError:
+        reject()
+    return spec
+
+
+@settings(max_examples=1000 if LONG else 60, deadline=None, derandomize=not LONG,
+          suppress_health_check=[HealthCheck.too_slow, HealthCheck.filter_too_much])
+@given(spec=block_specs(), seed=st.integers(0, 2**32 - 1))
 def test_kernel_equals_fast_pipeline_word_for_word(spec, seed):
     """The trial kernel's threshold and decision equal refmodel.pipeline_fast's at every interior CUT."""
     pipeline_fast = pytest.importorskip("refmodel.pipeline_fast")
