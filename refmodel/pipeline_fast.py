@@ -48,6 +48,8 @@ from .word_format import FIELDS, PipelineOutput
 
 #: Cells per block of work: 2**16 int64 values (512 KiB) stay in a 1 MiB L2 cache.
 BLOCK_CELLS = 1 << 16
+#: Runs of equal-length frames in one chunk above which frames are grouped by length instead.
+MAX_RUNS = 64
 #: Longest frame kept whole under the ``circular`` policy (``stream.frame_length`` limit).
 MAX_CIRCULAR_FRAME = 1 << 24
 
@@ -158,14 +160,23 @@ class FastPipeline:
             self._group(carried[None, :], seen - self._tail.size, next_cut, mid, frame_len, fields, 0)
             self._group(x[None, :first], seen, mid, head_stop, frame_len, fields, mid - next_cut)
 
-        # 2. Whole frames inside the chunk; a run of equal lengths is one 2-D array of frames.
+        # 2. Whole frames inside the chunk. A run of frames of one length is one 2-D array (a view);
+        #    when lengths vary a lot, the frames of each length are gathered into one and scattered back.
         if lengths.size:
             starts = ends[:-1] + 1
             breaks = np.r_[0, np.flatnonzero(np.diff(lengths)) + 1, lengths.size]
-            for a, b in zip(breaks[:-1], breaks[1:]):
-                s, length = int(starts[a]), int(lengths[a])
-                rows = x[s : s + (b - a) * length].reshape(b - a, length)
-                self._group(rows, 0, 0, length, length, fields, pend + s)
+            if breaks.size <= MAX_RUNS:
+                for a, b in zip(breaks[:-1], breaks[1:]):
+                    s, length = int(starts[a]), int(lengths[a])
+                    rows = x[s : s + (b - a) * length].reshape(b - a, length)
+                    self._group(rows, 0, 0, length, length, fields, pend + s)
+            else:
+                for length in np.unique(lengths).tolist():
+                    at = starts[lengths == length][:, None] + np.arange(length)
+                    part = _empty(at.size)
+                    self._group(x[at], 0, 0, length, length, [getattr(part, f) for f in FIELDS], 0)
+                    for f in FIELDS:
+                        getattr(out, f)[pend + at.ravel()] = getattr(part, f)
 
         # 3. The frame left open at the end of the chunk, and the state for the next call.
         if ends.size:
@@ -358,24 +369,64 @@ def _statistic_into(spec: BlockSpec, z: np.ndarray, m: int, lag_edge: slice, lea
     lead_at = h + g + 1  # column offset of the leading side's first cell from the lagging side's
     one_sided = spec.edge == "one-sided"
     if spec.kind == "os":
-        win = sliding_window_view(z[:, 1:], 2 * h + 1, axis=1)  # (rows, m, W), a view
+        # Samples fit 32 bits; numpy selects fastest on 32-bit cells (measured: several times uint64 or uint16).
+        win = sliding_window_view(z[:, 1:].astype(np.uint32), 2 * h + 1, axis=1)  # (rows, m, W), a view
         k = spec.rank
-        cells = win[:, :, np.r_[0:r, lead_at : lead_at + r]]
-        s[...] = np.partition(cells, k - 1, axis=-1)[..., k - 1]
+        cells = win[:, :, np.r_[0:r, lead_at : lead_at + r]]  # a copy, partitioned in place
+        cells.partition(k - 1, axis=-1)
+        s[...] = cells[..., k - 1]
         if one_sided:
             kh = spec.os_side_rank
             for side, cols in ((lag_edge, slice(lead_at, lead_at + r)), (lead_edge, slice(0, r))):
                 if side.start < side.stop:
                     s[:, side] = np.partition(win[:, side, cols], kh - 1, axis=-1)[..., kh - 1]
         return
-    c = np.cumsum(z, axis=1, out=_take(work, z.shape))
-    box = np.subtract(c[:, r:], c[:, :-r], out=z[:, : c.shape[1] - r])  # box[:, j] = sum of cells j+1 .. j+R
+    box = _box_sums(z, r, work)  # box[:, j] = sum of the cells in columns j+1 .. j+R
     lag, lead = box[:, :m], box[:, lead_at : lead_at + m]
     {"ca": np.add, "go": np.maximum, "so": np.minimum}[spec.kind](lag, lead, out=s)
     if one_sided:
         factor = np.uint64(2 if spec.kind == "ca" else 1)  # CA one-sided doubles the side sum
         np.multiply(lead[:, lag_edge], factor, out=s[:, lag_edge])
         np.multiply(lag[:, lead_edge], factor, out=s[:, lead_edge])
+
+
+def _box_sums(z: np.ndarray, r: int, work: list) -> np.ndarray:
+    """Sums of ``r`` consecutive cells: column ``j`` of the result sums ``z[:, j+1 .. j+r]``.
+
+    Short windows double up: the sums of 2, 4, 8, ... cells are each one
+    addition of two shifted copies of the previous ones, and the set bits of
+    ``r`` are added together [1]_; this takes ``floor(log2 r)`` additions plus
+    two per further set bit. Longer windows take one cumulative sum and one
+    difference [2]_ (exact modulo ``2**64``, [3]_). ``z`` is overwritten.
+
+    References
+    ----------
+    .. [1] common practice, no source (binary decomposition of a sliding sum).
+    .. [2] Blelloch 1990, see the module references.
+    .. [3] Knuth 1997, sec. 4.3.2, see the module references.
+    """
+    rows, n = z.shape
+    top = r.bit_length() - 1
+    if top + 2 * (r.bit_count() - 1) > 6:
+        c = np.cumsum(z, axis=1, out=_take(work, z.shape))
+        return np.subtract(c[:, r:], c[:, :-r], out=z[:, : n - r])
+    cur, spare = z[:, 1:], _take(work, (rows, n - 1))
+    acc, covered = None, 0  # acc[:, j] = sum of `covered` cells from column j
+    for i in range(top + 1):
+        span = 1 << i
+        if i:  # cur becomes the sums of `span` cells
+            half = span >> 1
+            cur, spare = np.add(cur[:, : n - span], cur[:, half : n - span + half], out=spare[:, : n - span]), cur
+        if r >> i & 1:
+            if covered == 0 and i == top:
+                return cur
+            if covered == 0:
+                acc = np.array(cur)  # a copy: cur's buffer is reused
+            else:
+                width = n - covered - span
+                np.add(acc[:, :width], cur[:, covered : covered + width], out=acc[:, :width])
+            covered += span
+    return acc[:, : n - r]
 
 
 def _largest_t0(spec: BlockSpec) -> int:

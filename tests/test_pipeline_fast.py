@@ -498,6 +498,16 @@ def test_long_frames_split_into_blocks(monkeypatch):
         assert_words(run_fast(spec, x, last), direct_words(spec, x, last))
 
 
+@pytest.mark.parametrize("kind, edge", [("ca", "one-sided"), ("os", "circular"), ("so", "skip"), ("go", "zero-pad")])
+def test_many_frames_of_varied_lengths(kind, edge):
+    """More runs of equal lengths than the row layout takes: frames are grouped by length and scattered back."""
+    spec = make_spec(kind, rank=3 if kind == "os" else None, edge=edge)
+    rng = np.random.default_rng(21)
+    frames = [rng.integers(0, 16, n) for n in rng.integers(7, 12, pipeline_fast.MAX_RUNS * 3)]
+    x, last = stream(*frames)
+    assert_words(run_fast(spec, x, last), direct_words(spec, x, last))
+
+
 def test_sample_dtypes():
     """Narrow unsigned, signed and uint64 sample arrays, and 0/1 integer markers, give the same words."""
     spec = make_spec("go", edge="circular")
