@@ -185,10 +185,11 @@ def _plot_pd(result: StudyResult, path: Path, ref: dict, cheap: dict) -> None:
         flt = [td.pd(spec.kind, spec.n_ref, spec.alpha, x, sw, spec.rank) for x in grid]
         ax.plot(grid, flt, color="k", label=f"float design (Pfa {cfg.design_pfa:.3g})")
         ax.plot(grid, result.curves[ref["index"]][f"pd_sw{sw}"], linestyle="--",
-                label=f"pipeline, reference point #{ref['index']} ({ref['cost_bits']} bits)")
+                label=f"pipeline, reference point #{ref['index']} ({ref['cost_bits']} bits, Pfa {ref['pfa_exact']:.2g})")
         if cheap["index"] != ref["index"]:
             ax.plot(grid, result.curves[cheap["index"]][f"pd_sw{sw}"], linestyle=":",
-                    label=f"pipeline, cheapest point #{cheap['index']} ({cheap['cost_bits']} bits)")
+                    label=f"pipeline, cheapest point #{cheap['index']} ({cheap['cost_bits']} bits, "
+                          f"Pfa {cheap['pfa_exact']:.2g})")
         ax.axhline(cfg.pd, color="0.5", linewidth=0.8)
         ax.set_xlabel("SNR per cell (dB)")
         ax.set_ylabel("probability of detection Pd")
@@ -288,13 +289,13 @@ def _summary(result: StudyResult) -> str:
         "## Points",
         "",
     ]
-    head = ["#"] + [a for a in AXES if a in cfg.swept] + ["cost", "Pfa exact / design", "MC Pfa"] + [
+    head = ["#"] + [a for a in AXES if a in cfg.swept] + ["cost", "Pfa exact / design", "same, noise +3 dB", "MC Pfa"] + [
         f"loss {_SW_NAME[s]} (dB)" for s in cfg.swerling] + ["meets"]
     lines.append("| " + " | ".join(head) + " |")
     lines.append("|" + "---|" * len(head))
     for r in sorted(rows, key=lambda r: (r["cost_bits"], r["index"])):
         cells = [str(r["index"])] + [_fmt(r[a]) for a in AXES if a in cfg.swept] + [
-            str(r["cost_bits"]), f"{r['pfa_ratio']:.4f}",
+            str(r["cost_bits"]), f"{r['pfa_ratio']:.4f}", f"{r['pfa_ratio_noise_x2']:.4f}",
             f"{r['mc_pfa']:.3g}" if r["mc_trials"] else "-"] + [
             _num(r[f"loss_sw{s}_db"], ".4f") for s in cfg.swerling] + ["yes" if r["meets_budget"] else "no"]
         lines.append("| " + " | ".join(cells) + " |")
