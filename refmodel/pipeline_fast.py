@@ -12,16 +12,17 @@ Each frame is processed as the window sees it: the frame's samples with ``H``
 edge cells on each end (zeros, or the wrapped samples under ``circular``),
 exactly as the reference design's drain or replay feeds them. Frames of one
 length lie side by side as the rows of a 2-D array, and the work runs in
-blocks of about ``2**16`` cells, so every intermediate stays in the processor
-cache. For CA, GO and SO the cells are multiplied by the constant ``A`` as
-they are copied in; one cumulative sum per row then gives every side sum as a
-difference [2]_, and the maximum, minimum and sum of the sides commute with
-the multiplication by ``A > 0``. The arithmetic is unsigned 64-bit, which
-wraps modulo ``2**64``; a difference of two wrapped prefix sums is still exact
-whenever the true value fits [3]_, and every product fits 62 bits (the block
-spec checks it). OS gathers the ``2R`` reference cells of each CUT from a
-strided window view and selects the ``k``-th smallest with
-:func:`numpy.partition`.
+blocks of about ``2**16`` cells, so that the intermediates stay in the
+processor cache. For CA, GO and SO the cells are multiplied by the constant
+``A`` as they are copied in (the maximum, minimum and sum of the sides commute
+with the multiplication by ``A > 0``); the side sums of ``R`` cells then come
+from a few additions of shifted copies (sums of 2, 4, 8, ... cells), or for
+long sides from one cumulative sum per row and one difference [2]_. The
+arithmetic is unsigned 64-bit, which wraps modulo ``2**64``; a difference of
+two wrapped prefix sums is still exact whenever the true value fits [3]_, and
+every product fits 62 bits (the block spec checks it). OS gathers the ``2R``
+reference cells of each CUT from a strided window view and selects the
+``k``-th smallest with :meth:`numpy.ndarray.partition`.
 
 References
 ----------
@@ -78,7 +79,7 @@ class FastPipeline:
 
     def __init__(self, spec: BlockSpec):
         self.spec = spec
-        self._r, self._g, self._h = spec.ref_per_side, spec.guard_per_side, spec.half_window
+        self._h = spec.half_window
         self._circular = spec.edge == "circular"
         self._top_in = (1 << spec.input_bits) - 1
         # CA/GO/SO cells are scaled by A on entry unless each partial product is truncated.
@@ -86,11 +87,9 @@ class FastPipeline:
         self._a, self._d = spec.alpha_int, spec.drop_bits  # alpha_int is recomputed on each access
         self._top = (1 << spec.threshold_bits) - 1
         self._overflow_possible = _largest_t0(spec) > self._top
-        r, g = self._r, self._g
-        self._ref_columns = np.r_[0:r, r + 2 * g + 1 : 2 * r + 2 * g + 1]
-        cells_per_cut = 2 * r if spec.kind == "os" else 1
+        cells_per_cut = 2 * spec.ref_per_side if spec.kind == "os" else 1
         self._block = max(BLOCK_CELLS // cells_per_cut, 4 * self._h, 64)
-        # Work space reused from block to block: the cells and their cumulative sums.
+        # Work space reused from block to block: the window cells and their partial sums.
         self._cells_buf, self._work = [np.zeros(0, np.uint64)], [np.zeros(0, np.uint64)]
         self._tail = np.zeros(0, dtype=np.int64)  # frame indices [seen - len(tail), seen) of the open frame
         self._pieces: list[np.ndarray] = []  # circular: the open frame so far
