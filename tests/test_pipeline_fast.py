@@ -284,6 +284,8 @@ def test_worked_example_statistic_helper():
     assert statistic(make_spec("ca", edge="one-sided"), RAMP).tolist() == CA_RAMP["one-sided"]
     # GO zero-pad: max(lag, lead) = max(0,7), max(0,9), max(1,11), max(3,13), max(5,15), max(7,8), max(9,0), max(11,0)
     assert statistic(make_spec("go"), RAMP).tolist() == [7, 9, 11, 13, 15, 8, 9, 11]
+    # OS k = 3 zero-pad: 3rd smallest of {0,0,3,4}, {0,0,4,5}, {0,1,5,6}, {1,2,6,7}, {2,3,7,8}, {0,3,4,8}, {0,0,4,5}, {0,0,5,6}
+    assert statistic(make_spec("os", rank=3), RAMP).tolist() == [3, 4, 5, 6, 7, 4, 4, 5]
 
 
 # GO/SO: divisor R = 2, target = 4 * 16 / 2 = 32, A = 32, T0 = (32 S + 8) >> 4 = 2 S.
