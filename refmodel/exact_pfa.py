@@ -29,26 +29,28 @@ law of the quantised, clipped input word (:mod:`refmodel.input_quantiser`):
 
 Numerical method and accuracy
 -----------------------------
-Convolution powers use binary powering (repeated squaring). A product of two
-short vectors is a direct sum (``numpy.convolve``), whose terms are all
-non-negative, so each element carries a *relative* error of at most about
-``m * u`` (``m`` terms, unit round-off ``u``) even deep in the tails. Longer
-ones use ``scipy.signal.fftconvolve`` (negative round-off clipped to 0),
+A convolution power of a short vector is computed by binary powering of
+direct sums (``numpy.convolve``), whose terms are all non-negative, so each
+element carries a *relative* error of at most about ``m * u`` (``m`` terms,
+unit round-off ``u``) even deep in the tails. A long one is a single
+transform, ``irfft(rfft(p)**n)`` (scipy.fft; one forward and one inverse
+transform instead of the ``log2(n)`` products that repeated
+``scipy.signal.fftconvolve`` would need; negative round-off clipped to 0),
 whose error is *absolute*: per element at most
-``3 log2(n) eta (||a||_2 ||b||_1 + ||a||_1 ||b||_2)``, ``eta = 7 u``, the
-FFT error bound of [1]_ carried through the product and the inverse
-transform. Absolute errors would swamp the tiny tail probabilities that make
-up a Pfa of 1e-9, so the FFT path is run twice: once on the plain law and
-once on the exponentially tilted law ``p_theta(k) = p(k) exp(theta k) /
-M(theta)``, ``theta = -alpha_r / (D m)`` (``D`` the mean divisor, ``m`` the
-noise level in LSBs). Tilting commutes with convolution, ``P(S = s) =
-M(theta)^n exp(-theta s) P_theta(S = s)`` [2]_, and puts the tilted law's
-bulk where the terms of (1) that make the Pfa are, so there the FFT's
-absolute error is small relative to them. For every ``s`` the estimate with
-the smaller error bound is kept, and the bounds are carried into every
-result: :meth:`TriggerLaw.pfa_error_bound` is a rigorous-in-form bound on
-the Pfa's absolute error (tests check it against direct convolution and
-Monte Carlo).
+``n kappa ||p||_2 + (kappa + (n+2) u) ||y||_2`` with ``kappa = 7 u log2(L)``
+(the FFT error bound of [1]_ carried through the power and the inverse
+transform, ``L`` the transform length, ``y`` the result). Absolute errors
+would swamp the tiny tail probabilities that make up a Pfa of 1e-9, so the
+FFT path is run twice: once on the plain law and once on the exponentially
+tilted law ``p_theta(k) = p(k) exp(theta k) / M(theta)``, ``theta = -alpha_r
+/ (D m)`` (``D`` the mean divisor, ``m`` the noise level in LSBs). Tilting
+commutes with convolution, ``P(S = s) = M(theta)^n exp(-theta s) P_theta(S =
+s)`` [2]_, and puts the tilted law's bulk where the terms of (1) that make
+the Pfa are, so there the FFT's absolute error is small relative to them.
+For every ``s`` the estimate with the smaller error bound is kept, and the
+bounds are carried into every result: :meth:`TriggerLaw.pfa_error_bound`
+bounds the Pfa's absolute error (the tests check it against direct
+convolution, closed-form laws and Monte Carlo).
 
 The law of a noise word is truncated above ``K`` words (mass at most
 ``tail``), which drops only configurations with some reference cell above
