@@ -17,6 +17,7 @@ from __future__ import annotations
 import math
 import tomllib
 from dataclasses import dataclass, field, replace
+from functools import cached_property
 from pathlib import Path
 from types import MappingProxyType
 from typing import Any, Mapping
@@ -218,12 +219,12 @@ class BlockSpec:
         """The exact scaled constant before quantisation: ``alpha * 2**(F_A + s) / divisor``."""
         return self.alpha * 2.0 ** (self.alpha_frac_bits + self.mean_shift) / self.mean_divisor
 
-    @property
+    @cached_property
     def alpha_int(self) -> int:
         """The quantised constant A (an unsigned integer with ``alpha_frac_bits`` fraction bits)."""
         return quantise_constant(self.alpha_target, self.alpha_csd_digits)
 
-    @property
+    @cached_property
     def alpha_digits(self) -> list[tuple[int, int]]:
         """A as signed power-of-two terms ``[(sign, power), ...]`` (its NAF)."""
         return naf_digits(self.alpha_int)
