@@ -40,6 +40,8 @@ from .word_format import PipelineOutput, output_field_offsets, pack_input, unpac
 
 # A window cell: (value, body, last). Reset and drain cells are _ZERO.
 _ZERO = (0, False, False)
+#: Longest frame under ``circular``, which stores the whole frame (docs/bit-true.md section 1).
+MAX_CIRCULAR_FRAME = 1 << 24
 
 
 class StructuralPipeline:
@@ -67,7 +69,7 @@ class StructuralPipeline:
         self._in_mask = (1 << spec.input_bits) - 1
         self._off = {name: lsb for name, (lsb, _w) in output_field_offsets(spec).items()}
         self._circular = spec.edge == "circular"
-        self._A = spec.alpha_int  # the constant, fixed at build time (a property that searches CSD values)
+        self._A = spec.alpha_int  # the constant A of section 4, fixed at build time
         self.reset()
 
     # ---- state ------------------------------------------------------------
@@ -224,8 +226,8 @@ def check_stream(spec: BlockSpec, samples, last) -> tuple[np.ndarray, np.ndarray
     ------
     SpecError
         For samples out of ``0 .. 2**input_bits - 1``, arrays of different
-        lengths, a final sample without the last marker, or a frame shorter
-        than the window.
+        lengths, a final sample without the last marker, a frame shorter
+        than the window, or under ``circular`` a frame over ``2**24`` samples.
     """
     x = np.asarray(samples)
     m = np.asarray(last)
@@ -244,6 +246,9 @@ def check_stream(spec: BlockSpec, samples, last) -> tuple[np.ndarray, np.ndarray
         lengths = np.diff(np.concatenate([[-1], ends]))
         require(int(lengths.min()) >= spec.window_length, "frame length", f"a frame of {int(lengths.min())} samples",
                 f"frames of at least the window length 2R+2G+1 = {spec.window_length}")
+        if spec.edge == "circular":  # the whole frame is stored
+            require(int(lengths.max()) <= MAX_CIRCULAR_FRAME, "frame length", f"a frame of {int(lengths.max())} samples",
+                    f"frames of at most {MAX_CIRCULAR_FRAME} samples under edge = \"circular\"")
     return x, m
 
 

@@ -220,3 +220,13 @@ def test_bad_stream_names_the_field(samples, last, field):
     with pytest.raises(SpecError) as info:
         check_stream(_spec(), np.array(samples), np.array(last))
     assert info.value.field == field
+
+
+def test_circular_frame_limit():
+    """Section 1: under circular a frame holds at most 2**24 samples (checked before any clock runs)."""
+    n = (1 << 24) + 1
+    last = np.zeros(n, dtype=bool)
+    last[-1] = True
+    with pytest.raises(SpecError) as info:
+        check_stream(_spec(edge="circular"), np.zeros(n, dtype=np.int64), last)
+    assert info.value.field == "frame length"
