@@ -31,6 +31,7 @@ EDGES = ("skip", "zero-pad", "one-sided", "circular")
 COMPARES = (">", ">=")
 DOWNSTREAM_SECTIONS = ("vectors", "ports", "study")
 MAX_PRODUCT_BITS = 62
+MAX_WORD_BITS = 64  # output words are packed into uint64
 
 _DETECTOR_KEYS = {
     "kind": "ca",
@@ -452,6 +453,9 @@ def spec_from_dict(data: Mapping[str, Any], source: str | None = None) -> BlockS
     auto_t = max(1, int(t_max).bit_length())
     w_t = fx["threshold_bits"]
     w_t = auto_t if w_t is None else _int("fixed", "threshold_bits", w_t, 1, 62)
+    require(w_in + w_t + 3 <= MAX_WORD_BITS, "fixed.threshold_bits",
+            f"output word would be input_bits + threshold_bits + 3 = {w_in + w_t + 3} bits",
+            f"a threshold width with input_bits + threshold_bits + 3 <= {MAX_WORD_BITS}")
     return replace(spec, threshold_bits=w_t)
 
 

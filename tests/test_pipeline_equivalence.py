@@ -16,6 +16,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+
+from refmodel.errors import SpecError
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -118,11 +120,9 @@ def test_many_frames_in_small_chunks():
     assert_same_words(spec, x, last, chunk=37)
 
 
-def test_words_wider_than_64_bits():
-    """A 78-bit output word (32-bit input, 43-bit threshold): field for field."""
-    spec = spec_from_dict({"detector": {"kind": "go", "ref_cells_per_side": 4, "alpha": 5.0, "edge": "one-sided"},
-                           "fixed": {"input_bits": 32, "alpha_frac_bits": 20, "threshold_frac_bits": 8}})
-    assert spec.output_bits > 64
-    rng = np.random.default_rng(3)
-    x, last = stream(rng.integers(0, 1 << 32, 50), np.full(9, (1 << 32) - 1), rng.integers(0, 1 << 32, 31))
-    assert_words(run_fast(spec, x, last), run_structural(spec, x, last))
+def test_words_wider_than_64_bits_are_refused():
+    """32-bit input and a 43-bit threshold would make a 78-bit word: refused, naming the field."""
+    with pytest.raises(SpecError, match="fixed.threshold_bits"):
+        spec_from_dict({"detector": {"kind": "ca", "ref_cells_per_side": 4, "alpha": 5.0, "edge": "zero-pad"},
+                        "fixed": {"input_bits": 32, "alpha_frac_bits": 20, "threshold_frac_bits": 8}})
+

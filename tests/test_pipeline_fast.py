@@ -423,15 +423,16 @@ def test_skip_zeroes_threshold_and_detection():
 
 
 def test_minimal_and_maximal_formats():
-    """1-bit input (values 0, 1) and 32-bit input (full scale 2^32 - 1) both give the definition's words."""
-    for bits, alpha in ((1, 1.0), (32, 2.0)):
+    """1-bit input (values 0, 1) and 28-bit input (full scale 2^28 - 1, the widest whose CA threshold
+    still fits a 64-bit output word unsaturated) both give the definition's words."""
+    for bits, alpha in ((1, 1.0), (28, 2.0)):
         spec = spec_from_dict({"detector": {"kind": "ca", "ref_cells_per_side": 1, "alpha": alpha, "edge": "zero-pad"},
                                "fixed": {"input_bits": bits, "alpha_frac_bits": 0}})
         top = 2**bits - 1
         x, last = stream([top, 0, top], [top] * 4)
         assert_words(run_fast(spec, x, last), direct_words(spec, x, last))
-    # 32-bit: R = 1, D = 2, A = floor(2 * 1 / 2 + 1/2) = 1, d = 0: T = S.
-    # Frame 2, CUT 1: S = x[0] + x[2] = 2 (2^32 - 1).
+    # 28-bit: R = 1, D = 2, A = floor(2 * 1 / 2 + 1/2) = 1, d = 0: T = S.
+    # Frame 2, CUT 1: S = x[0] + x[2] = 2 (2^28 - 1).
     assert run_fast(spec, x, last).threshold[4] == 2 * top
 
 

@@ -174,22 +174,11 @@ def test_minimal_input_width_and_compare_at_equality():
         assert out.det[1:3].tolist() == [det, det]
 
 
-def test_words_wider_than_64_bits():
-    """32-bit input and a 43-bit threshold make a 78-bit word: the fields survive whole."""
-    spec = spec_from_dict({"detector": {"kind": "ca", "ref_cells_per_side": 4, "alpha": 5.0, "edge": "zero-pad"},
-                           "fixed": {"input_bits": 32, "alpha_frac_bits": 20, "threshold_frac_bits": 8}})
-    assert spec.output_bits == 78
-    top = (1 << 32) - 1
-    x, last = stream(np.full(12, top), [top, 0, 1, 2, top, top, 3, 4, 5, top])
-    out = run_structural(spec, x, last)
-    # Interior of the full-scale frame: S = 8 * top, A = round(5 * 2**20 / 8) = 655360, d = 12 (half-up).
-    assert spec.alpha_int == 655360
-    t_full = (8 * top * 655360 + (1 << 11)) >> 12
-    assert t_full.bit_length() == 43 and out.threshold[4:8].tolist() == [t_full] * 4
-    assert out.cut.tolist() == x.tolist() and out.last.tolist() == last.tolist()
-    words = simulate(spec, x, last).words
-    assert int(words[5]) >> 77 == 0 and (int(words[5]) >> 32) & ((1 << 43) - 1) == t_full
-
+def test_words_wider_than_64_bits_are_refused():
+    """32-bit input and a 43-bit threshold would make a 78-bit word: refused, naming the field."""
+    with pytest.raises(SpecError, match="fixed.threshold_bits"):
+        spec_from_dict({"detector": {"kind": "ca", "ref_cells_per_side": 4, "alpha": 5.0, "edge": "zero-pad"},
+                        "fixed": {"input_bits": 32, "alpha_frac_bits": 20, "threshold_frac_bits": 8}})
 
 def test_output_words_use_the_documented_bit_positions():
     spec = _spec()
