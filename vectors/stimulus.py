@@ -42,6 +42,8 @@ from typing import Iterator
 
 import numpy as np
 
+from refmodel.input_quantiser import quantise_power
+
 #: Nominal samples per generated block (whole frames; at least one frame).
 BLOCK_SAMPLES = 1 << 16
 
@@ -141,8 +143,12 @@ class Scenario:
 
 
 def quantise(power: np.ndarray, input_bits: int) -> np.ndarray:
-    """Round power to the nearest integer LSB (halves up) and clip to the input range."""
-    return np.clip(np.floor(power + 0.5), 0, (1 << input_bits) - 1).astype(np.int64)
+    """Input words from powers in LSB units, by the project's one input quantiser.
+
+    :func:`refmodel.input_quantiser.quantise_power`: ``min(floor(power), 2**input_bits - 1)``
+    (an ADC-like truncation), the same law the quantisation study computes with.
+    """
+    return quantise_power(power, input_bits).astype(np.int64)
 
 
 def block_generators(seq: np.random.SeedSequence) -> Iterator[np.random.Generator]:
