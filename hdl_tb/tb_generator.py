@@ -1,0 +1,570 @@
+"""Write a self-contained co-simulation testbench folder for a block spec.
+
+:func:`write_testbench` puts into one folder everything needed to check a
+streaming CFAR module against the project's bit-accurate model on Icarus
+Verilog:
+
+``vectors/``
+    the golden vector set (:func:`vectors.vector_set.write_vector_set`);
+``rtl/``
+    a copy of the RTL under test (the reference core by default);
+``bench/``
+    ``cfarvec_port_adapter.v`` (the module seen through the reference core's
+    interface, per the port map), ``cfarvec_bulk_top.v`` (Verilog-side bulk
+    driver), ``cfar_stream_tb.v`` (the pure-Verilog self-checking testbench,
+    instantiating the adapter when the port map is not the reference core's)
+    and ``timescale.f``;
+``cfarvec_cocotb_bench.py``, ``test_cfarvec_cosim.py``
+    the cocotb test module (bulk and interactive tests) and its pytest runner;
+``bench_config.json``, ``Makefile``, ``README.md``
+    the settings every bench reads, the commands, a short description.
+
+Generated text comes from ``hdl_tb/templates/`` through
+:class:`string.Template` with ``@@`` as the delimiter (so Verilog's ``$``
+system tasks and braces need no escaping). Only validated values are
+substituted: Verilog identifiers checked by :mod:`hdl_tb.port_map`,
+integers, and file names chosen here, so nothing can be injected.
+
+The folder is written into a temporary folder beside the target and renamed
+into place only when complete; a non-empty target is refused unless
+``force``.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import json
+import math
+import os
+import re
+import shutil
+import string
+import tempfile
+from dataclasses import dataclass
+from pathlib import Path
+from types import MappingProxyType
+from typing import Mapping, Sequence
+
+import numpy as np
+
+from refmodel.block_spec import BlockSpec
+from refmodel.errors import SpecError, require
+from refmodel.word_format import output_field_offsets
+from vectors.manifest import tool_version
+from vectors.vector_set import vector_settings, write_vector_set
+from vectors.writers import parse_fixed
+
+from .core_params import (BENCH_SOURCE, CORE_SOURCES, COMPARE_CODES, EDGE_CODES, KIND_CODES, OVERFLOW_CODES,
+                          ROUNDING_CODES, core_parameters)
+from .port_map import PortMap, check_against_rtl, port_map_from_spec, verilog_literal
+
+TEMPLATE_DIR = Path(__file__).resolve().parent / "templates"
+CONFIG_NAME = "bench_config.json"
+CONFIG_FORMAT = "cfarvec-testbench"
+CONFIG_FORMAT_VERSION = 1
+COCOTB_MODULE = "cfarvec_cocotb_bench"
+PYTEST_FILE = "test_cfarvec_cosim.py"
+ADAPTER_TOP = "cfarvec_port_adapter"
+BULK_TOP = "cfarvec_bulk_top"
+VERILOG_TOP = "cfar_stream_tb"
+MODES = ("bulk", "interactive", "verilog")
+DEFAULT_GAP_PERCENT = 20
+DEFAULT_STALL_PERCENT = 30
+#: Codes of what the reference core lacks; the parameters are still passed to a core of the user's own.
+EXTRA_KIND_CODE = 3
+EXTRA_EDGE_CODE = 3
+
+_PARAMETER_COMMENTS = {
+    "INPUT_BITS": "Sample width W_in in bits.",
+    "REF_CELLS": "Reference cells per side R.",
+    "GUARD_CELLS": "Guard cells per side G.",
+    "KIND": "Detector kind: 0 = CA, 1 = GO, 2 = SO, 3 = OS.",
+    "EDGE": "Edge policy: 0 = skip, 1 = zero-pad, 2 = one-sided, 3 = circular.",
+    "SUM_BITS": "Running-sum width W_S.",
+    "ALPHA_INT": "The constant A.",
+    "DROP_BITS": "Product fraction bits dropped, d.",
+    "THRESHOLD_FRAC_BITS": "Threshold fraction bits F_T.",
+    "THRESHOLD_BITS": "Threshold width W_T.",
+    "ROUNDING": "Rounding: 0 = floor, 1 = half-up, 2 = half-even.",
+    "OVERFLOW": "Threshold overflow: 0 = saturate, 1 = wrap.",
+    "COMPARE_GE": "Decision: 0 = CUT > T, 1 = CUT >= T.",
+    "TRUNCATE_PARTIALS": "1 = truncated shift-and-add multiplier.",
+    "PIPELINE_STAGES": "Register stages after the window.",
+    "SRST_LEVEL": "Level of srst that resets: 1 = high, 0 = low.",
+}
+
+
+class _Template(string.Template):
+    delimiter = "@@"
+
+
+def render(name: str, **values) -> str:
+    """Fill the template ``hdl_tb/templates/<name>``; every placeholder must be given."""
+    text = (TEMPLATE_DIR / name).read_text(encoding="utf-8")
+    return _Template(text).substitute({k: str(v) for k, v in values.items()})
+
+
+@dataclass(frozen=True)
+class BenchFolder:
+    """A generated testbench folder.
+
+    Attributes
+    ----------
+    path : pathlib.Path
+        The folder.
+    config : mapping
+        The content of its ``bench_config.json``.
+    ports_checked : bool
+        False when Icarus Verilog was missing and the port map could not be
+        checked against the RTL.
+    """
+
+    path: Path
+    config: Mapping
+    ports_checked: bool
+
+
+# --------------------------------------------------------------------------
+# Parameters
+# --------------------------------------------------------------------------
+
+
+def bench_parameters(spec: BlockSpec) -> dict[str, int]:
+    """The reference-core parameters for ``spec``, as the testbenches pass them.
+
+    Equal to :func:`hdl_tb.core_params.core_parameters` for every spec the
+    reference core implements; for the order-statistic kind and the circular
+    policy, which only a core of the user's own can implement, ``KIND`` and
+    ``EDGE`` take the code 3. ``SRST_LEVEL`` is 1: the benches drive an
+    active-high reset (the adapter converts it to the module's level).
+    """
+    try:
+        return core_parameters(spec)
+    except SpecError as exc:
+        if exc.field not in ("detector.kind", "detector.edge"):
+            raise
+    return {
+        "INPUT_BITS": spec.input_bits,
+        "REF_CELLS": spec.ref_per_side,
+        "GUARD_CELLS": spec.guard_per_side,
+        "KIND": KIND_CODES.get(spec.kind, EXTRA_KIND_CODE),
+        "EDGE": EDGE_CODES.get(spec.edge, EXTRA_EDGE_CODE),
+        "SUM_BITS": spec.sum_bits,
+        "ALPHA_INT": int(spec.alpha_int),
+        "DROP_BITS": spec.drop_bits,
+        "THRESHOLD_FRAC_BITS": spec.threshold_frac_bits,
+        "THRESHOLD_BITS": spec.threshold_bits,
+        "ROUNDING": ROUNDING_CODES[spec.rounding],
+        "OVERFLOW": OVERFLOW_CODES[spec.overflow],
+        "COMPARE_GE": COMPARE_CODES[spec.compare],
+        "TRUNCATE_PARTIALS": int(spec.truncate_partials),
+        "PIPELINE_STAGES": spec.pipeline_stages,
+        "SRST_LEVEL": 1,
+    }
+
+
+def module_parameters(pm: PortMap, bench: Mapping[str, int]) -> dict[str, int]:
+    """Parameters given to the module under test itself."""
+    params = {}
+    if pm.core_parameters:
+        params.update(bench)
+        params["SRST_LEVEL"] = 1 if pm.reset_active_high else 0
+    params.update(pm.parameters)
+    return params
+
+
+# --------------------------------------------------------------------------
+# Generated Verilog
+# --------------------------------------------------------------------------
+
+
+def _parameter_block(params: Mapping[str, int], trailing_comma: bool) -> str:
+    lines = []
+    items = list(params.items())
+    for k, (name, value) in enumerate(items):
+        comma = "," if trailing_comma or k < len(items) - 1 else ""
+        lines.append(f"    // {_PARAMETER_COMMENTS.get(name, name)}")
+        if name == "ALPHA_INT":
+            lines.append(f"    parameter [63:0] ALPHA_INT = 64'd{value}{comma}")
+        else:
+            lines.append(f"    parameter integer {name} = {value}{comma}")
+    return "\n".join(lines)
+
+
+def _bits(lsb: int, width: int) -> str:
+    return f"[{lsb}]" if width == 1 else f"[{lsb + width - 1}:{lsb}]"
+
+
+def adapter_source(pm: PortMap, bench: Mapping[str, int]) -> str:
+    """``cfarvec_port_adapter.v``: the module under test behind the reference core's interface."""
+    user = {}
+    if pm.core_parameters:
+        user.update({name: name for name in bench})
+        user["SRST_LEVEL"] = "1" if pm.reset_active_high else "0"
+    user.update({k: verilog_literal(v) for k, v in pm.parameters.items()})
+    override = ""
+    if user:
+        inner = ",\n".join(f"        .{k}({v})" for k, v in user.items())
+        override = f"#(\n{inner}\n    ) "
+    sig = pm.signals
+    conns = [(pm.clock, "clk"), (pm.reset, "dut_reset"),
+             (sig["in_data"], "s_axis_tdata"), (sig["in_valid"], "s_axis_tvalid"),
+             (sig["in_ready"], "s_axis_tready"), (sig["in_last"], "s_axis_tlast"),
+             (sig["out_data"], "dut_out_data"), (sig["out_valid"], "m_axis_tvalid"),
+             (sig["out_ready"], "m_axis_tready")]
+    if sig["out_last"] is not None:
+        conns.append((sig["out_last"], "dut_out_last"))
+    connections = ",\n".join(f"        .{port}({wire})" for port, wire in conns)
+    assigns = []
+    for name, (lsb, width) in pm.out_fields.items():
+        std_lsb, _ = pm.standard_fields[name]
+        assigns.append(f"    // {name}")
+        assigns.append(f"    assign m_axis_tdata{_bits(std_lsb, width)} = dut_out_data{_bits(lsb, width)};")
+    last_lsb = pm.out_fields["last"][0]
+    if sig["out_last"] is not None:
+        assigns.append("    // The module's own last output.")
+        assigns.append("    assign m_axis_tlast = dut_out_last;")
+    else:
+        assigns.append("    // No separate last output: the word's last-marker bit.")
+        assigns.append(f"    assign m_axis_tlast = dut_out_data[{last_lsb}];")
+    return render(
+        "port_adapter.v.tmpl", version=tool_version(), module=pm.module, clock=pm.clock, reset=pm.reset,
+        reset_level="high" if pm.reset_active_high else "low", out_data_bits=pm.out_data_bits,
+        parameter_block=_parameter_block(bench, trailing_comma=False),
+        reset_expr="bench_reset" if pm.reset_active_high else "~bench_reset",
+        out_data_msb=pm.out_data_bits - 1,
+        last_wire="    wire dut_out_last;" if sig["out_last"] is not None else "",
+        parameter_override=override, connections=connections, field_assigns="\n".join(assigns),
+    )
+
+
+def bulk_top_source(bench: Mapping[str, int], max_words: int) -> str:
+    """``cfarvec_bulk_top.v``: the Verilog-side driver of the bulk cocotb bench."""
+    passing = ",\n".join(f"        .{name}({name})" for name in bench)
+    return render("bulk_top.v.tmpl", version=tool_version(), parameter_block=_parameter_block(bench, True),
+                  max_words=max_words, parameter_pass=passing)
+
+
+_TB_INSTANCE = re.compile(r"\bcfar_stream(\s*#\s*\()")
+
+
+def verilog_bench_source(through_adapter: bool) -> str:
+    """The pure-Verilog testbench, instantiating the adapter instead of ``cfar_stream`` when asked.
+
+    Raises
+    ------
+    RuntimeError
+        When ``hdl_tb/rtl/cfar_stream_tb.v`` does not instantiate
+        ``cfar_stream`` exactly once (it has changed beyond what this
+        generator knows).
+    """
+    text = BENCH_SOURCE.read_text(encoding="utf-8")
+    if not through_adapter:
+        return text
+    found = _TB_INSTANCE.findall(text)
+    if len(found) != 1:
+        raise RuntimeError(f"{BENCH_SOURCE.name} instantiates cfar_stream {len(found)} times; expected once")
+    note = ("// Generated by cfarvec: a copy of hdl_tb/rtl/cfar_stream_tb.v whose device under test is\n"
+            "// cfarvec_port_adapter (the module under test behind the reference core's interface).\n")
+    return note + _TB_INSTANCE.sub(rf"{ADAPTER_TOP}\1", text, count=1)
+
+
+# --------------------------------------------------------------------------
+# Vector set
+# --------------------------------------------------------------------------
+
+
+def _with_vectors(spec: BlockSpec, **changes) -> BlockSpec:
+    sections = dict(spec.sections)
+    sections["vectors"] = {**sections.get("vectors", {}), **changes}
+    return dataclasses.replace(spec, sections=MappingProxyType(sections))
+
+
+def _write_vectors(spec: BlockSpec, folder: Path, seed: int | None, samples: int | None) -> dict:
+    """Write the set; with ``samples``, add random frames until it holds at least that many samples."""
+    vspec = spec
+    for _ in range(8):
+        manifest = write_vector_set(vspec, folder, seed=seed, force=True)
+        total = manifest["totals"]["samples"]
+        if samples is None or total >= samples:
+            return manifest
+        settings = vector_settings(vspec, seed=seed)
+        mean = (spec.window_length + settings.random_length_max) / 2.0
+        more = math.ceil((samples - total) / mean * 1.05) + 1
+        vspec = _with_vectors(vspec, random_frames=settings.random_frames + more)
+    raise SpecError("--samples", f"could not make a vector set of {samples} samples", "a smaller number")
+
+
+def read_stimulus(folder: str | Path, config: Mapping) -> np.ndarray:
+    """All stimulus words of a generated folder (sample and last marker)."""
+    data = (Path(folder) / config["stimulus"]).read_bytes()
+    return parse_fixed(data, "hex", config["input_bits"] + 1)
+
+
+def whole_frames(stimulus: np.ndarray, input_bits: int, samples: int) -> int:
+    """``samples`` rounded up to the end of the frame it falls in (at most the whole stream)."""
+    ends = np.flatnonzero((stimulus >> np.uint64(input_bits)) & np.uint64(1))
+    if samples <= 0 or ends.size == 0:
+        return int(stimulus.shape[0])
+    k = int(np.searchsorted(ends, samples - 1, side="left"))
+    return int(ends[k]) + 1 if k < ends.size else int(stimulus.shape[0])
+
+
+# --------------------------------------------------------------------------
+# Folder
+# --------------------------------------------------------------------------
+
+
+def _prepare_target(out: Path, force: bool) -> None:
+    if out.exists() or out.is_symlink():
+        require(out.is_dir() and not out.is_symlink(), "--output", f"{str(out)!r} exists and is not a folder",
+                "a new or empty folder, or an existing folder with --force")
+        if any(out.iterdir()):
+            require(force, "--output", f"{str(out)!r} exists and is not empty",
+                    "a new or empty folder, or --force to replace it")
+
+
+def _move_into_place(tmp: Path, out: Path) -> None:
+    if out.exists() and any(out.iterdir()):
+        old = Path(tempfile.mkdtemp(prefix=f".{out.name}.old-", dir=out.parent))
+        os.replace(out, old / "previous")
+        try:
+            os.replace(tmp, out)
+        except BaseException:
+            os.replace(old / "previous", out)
+            shutil.rmtree(old, ignore_errors=True)
+            raise
+        shutil.rmtree(old, ignore_errors=True)
+    else:
+        os.replace(tmp, out)
+
+
+def _check_percent(name: str, value) -> int:
+    ok = isinstance(value, int) and not isinstance(value, bool) and 0 <= value <= 95
+    require(ok, name, f"got {value!r}", "an integer 0..95")
+    return value
+
+
+def resolve_rtl(rtl: Sequence[str | Path]) -> list[Path]:
+    """Check the ``--rtl`` files: they exist and their names differ (they are copied into one folder)."""
+    files = []
+    names: set[str] = set()
+    for f in rtl:
+        p = Path(f)
+        require(p.is_file(), "--rtl", f"no file {str(p)!r}", "existing Verilog or SystemVerilog files")
+        require(p.name not in names, "--rtl", f"two files named {p.name!r}", "files with distinct names")
+        require(p.suffix in (".v", ".sv", ".vh", ".svh"), "--rtl", f"{p.name!r} is not a .v or .sv file",
+                "Verilog (.v, .vh) or SystemVerilog (.sv, .svh) files")
+        names.add(p.name)
+        files.append(p)
+    return files
+
+
+def write_testbench(spec: BlockSpec, output: str | Path, *, rtl: Sequence[str | Path] = (), top: str | None = None,
+                    force: bool = False, seed: int | None = None, samples: int | None = None,
+                    gap_percent: int = DEFAULT_GAP_PERCENT, stall_percent: int = DEFAULT_STALL_PERCENT,
+                    check_ports: bool = True) -> BenchFolder:
+    """Generate a co-simulation testbench folder.
+
+    Parameters
+    ----------
+    spec : BlockSpec
+        The block. Its ``[vectors]`` section shapes the vector set, its
+        ``[ports]`` section (:mod:`hdl_tb.port_map`) names the module's ports.
+    output : str or pathlib.Path
+        Folder to create; must be new or empty unless ``force``.
+    rtl : sequence of path, optional
+        The RTL under test. Empty: the reference core ``cfar_stream``.
+    top : str, optional
+        Top module of ``rtl`` (overrides ``ports.module``).
+    force : bool
+        Replace a non-empty ``output`` (once the new folder is complete).
+    seed : int, optional
+        Seed of the vector set (overrides ``vectors.seed``) and of the
+        benches' gaps and backpressure (default: the vector set's seed).
+    samples : int, optional
+        Stream this many samples by default, rounded up to a whole frame;
+        the vector set gets more random frames when it is shorter.
+    gap_percent, stall_percent : int
+        Percent of cycles with no input offered / with the output not ready, 0..95.
+    check_ports : bool
+        Elaborate the module with the port map first (needs Icarus Verilog;
+        skipped, with ``ports_checked = False``, when it is missing).
+
+    Returns
+    -------
+    BenchFolder
+
+    Raises
+    ------
+    SpecError
+        Bad spec, port map or option; a spec the reference core does not
+        implement (without ``rtl``); missing or clashing RTL files; RTL that
+        does not compile; a port map naming ports or parameters the module
+        lacks (see :func:`hdl_tb.port_map.check_against_rtl`). Nothing is
+        written then.
+    """
+    pm = port_map_from_spec(spec, top=top)
+    rtl_files = resolve_rtl(rtl)
+    reference = not rtl_files
+    if reference:
+        core_parameters(spec)  # refuses what the reference core lacks, naming the field
+        rtl_files = list(CORE_SOURCES)
+    bench = bench_parameters(spec)
+    dut_params = module_parameters(pm, bench)
+    gap_percent = _check_percent("--gaps", gap_percent)
+    stall_percent = _check_percent("--stalls", stall_percent)
+    if samples is not None:
+        require(isinstance(samples, int) and not isinstance(samples, bool) and samples >= 1, "--samples",
+                f"got {samples!r}", "an integer >= 1")
+    settings = vector_settings(spec, seed=seed)  # validates [vectors] before anything is written
+    require(spec.output_bits <= 64, "fixed.threshold_bits",
+            f"the output word would be {spec.output_bits} bits", "an output word of at most 64 bits "
+            "(input_bits + threshold_bits + 3)")
+
+    ports_checked = False
+    if check_ports:
+        try:
+            from .verilog_bench import find_tools
+
+            find_tools()
+            have_sim = True
+        except SpecError:
+            have_sim = False
+        if have_sim:
+            check_against_rtl(pm, rtl_files, parameters=dut_params, input_bits=spec.input_bits,
+                              module_field="--top" if top is not None else "ports.module")
+            ports_checked = True
+
+    out = Path(output).absolute()
+    _prepare_target(out, force)
+    try:
+        out.parent.mkdir(parents=True, exist_ok=True)
+        tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.partial-", dir=out.parent))
+    except OSError as exc:
+        raise SpecError("--output", f"cannot create a folder in {str(out.parent)!r} ({exc.strerror})",
+                        "a path whose parent is, or can be made, a writable folder") from None
+    try:
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o777 & ~umask)
+        config = _generate(tmp, spec, pm, rtl_files, reference, bench, dut_params, seed, samples,
+                           settings.seed if seed is None else seed, gap_percent, stall_percent)
+        _prepare_target(out, force)
+        _move_into_place(tmp, out)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    return BenchFolder(out, MappingProxyType(config), ports_checked)
+
+
+def _generate(folder: Path, spec: BlockSpec, pm: PortMap, rtl_files: list[Path], reference: bool,
+              bench: dict, dut_params: dict, seed: int | None, samples: int | None, bench_seed: int,
+              gap_percent: int, stall_percent: int) -> dict:
+    manifest = _write_vectors(spec, folder / "vectors", seed, samples)
+    total = int(manifest["totals"]["samples"])
+    config_stub = {"stimulus": "vectors/stimulus.hex", "input_bits": spec.input_bits}
+    words = total if samples is None else whole_frames(read_stimulus(folder, config_stub), spec.input_bits, samples)
+    max_words = max(16, 1 << (total - 1).bit_length())
+
+    (folder / "rtl").mkdir()
+    rtl = []
+    for src in rtl_files:
+        shutil.copyfile(src, folder / "rtl" / src.name)
+        rtl.append(f"rtl/{src.name}")
+    bench_dir = folder / "bench"
+    bench_dir.mkdir()
+    (bench_dir / "timescale.f").write_text("+timescale+1ns/1ps\n", encoding="ascii")
+    (bench_dir / f"{ADAPTER_TOP}.v").write_text(adapter_source(pm, bench), encoding="ascii")
+    (bench_dir / f"{BULK_TOP}.v").write_text(bulk_top_source(bench, max_words), encoding="ascii")
+    direct = pm.is_reference
+    (bench_dir / f"{VERILOG_TOP}.v").write_text(verilog_bench_source(not direct), encoding="ascii")
+    adapter = [f"bench/{ADAPTER_TOP}.v"]
+
+    modes = {
+        "bulk": {"toplevel": BULK_TOP, "sources": rtl + adapter + [f"bench/{BULK_TOP}.v"],
+                 "parameters": {**bench, "MAX_WORDS": max_words}, "testcase": "bulk_stream"},
+        "interactive": {"toplevel": pm.module, "sources": rtl, "parameters": dut_params,
+                        "testcase": "interactive_stream"},
+        "verilog": {"toplevel": VERILOG_TOP,
+                    "sources": rtl + ([] if direct else adapter) + [f"bench/{VERILOG_TOP}.v"],
+                    "parameters": {**bench, "MAX_WORDS": max_words}},
+    }
+    config = {
+        "format": CONFIG_FORMAT,
+        "format_version": CONFIG_FORMAT_VERSION,
+        "tool_version": tool_version(),
+        "spec": spec.to_dict(),
+        "spec_source": spec.source,
+        "reference_core": reference,
+        "stimulus": "vectors/stimulus.hex",
+        "expected": "vectors/expected.hex",
+        "total_words": total,
+        "words": words,
+        "frames": int(manifest["totals"]["frames"]),
+        "input_bits": spec.input_bits,
+        "output_bits": spec.output_bits,
+        "fields": {k: list(v) for k, v in output_field_offsets(spec).items()},
+        "half_window": spec.half_window,
+        "pipeline_stages": spec.pipeline_stages,
+        "gap_percent": gap_percent,
+        "stall_percent": stall_percent,
+        "seed": bench_seed,
+        "port_map": pm.to_dict(),
+        "rtl": rtl,
+        "modes": modes,
+    }
+    (folder / CONFIG_NAME).write_text(json.dumps(config, indent=2, sort_keys=True) + "\n", encoding="utf-8")
+    (folder / f"{COCOTB_MODULE}.py").write_text(render("cocotb_bench.py.tmpl", version=tool_version()),
+                                                encoding="utf-8")
+    (folder / PYTEST_FILE).write_text(render("test_cosim.py.tmpl", version=tool_version()), encoding="utf-8")
+    (folder / "Makefile").write_text(_makefile(config), encoding="utf-8")
+    (folder / "README.md").write_text(_readme(spec, pm, config, reference), encoding="utf-8")
+    return config
+
+
+def _makefile(config: dict) -> str:
+    m = config["modes"]["verilog"]
+    params = " \\\n".join(f"\t  -P{VERILOG_TOP}.{k}={v}" for k, v in m["parameters"].items()) + " \\"
+    return render("Makefile.tmpl", version=tool_version(), gap_percent=config["gap_percent"],
+                  stall_percent=config["stall_percent"], seed=config["seed"], words=config["words"],
+                  verilog_sources=" ".join(m["sources"]), verilog_parameters=params,
+                  stimulus=config["stimulus"], expected=config["expected"])
+
+
+def _readme(spec: BlockSpec, pm: PortMap, config: dict, reference: bool) -> str:
+    sig = pm.signals
+    block = (f"{spec.kind.upper()} CFAR, R = {spec.ref_per_side} reference and G = {spec.guard_per_side} guard "
+             f"cells per side, edge policy {spec.edge}, {spec.input_bits}-bit samples, {spec.threshold_bits}-bit "
+             f"threshold ({spec.rounding}, {spec.overflow})")
+    rtl_note = ("a copy of the reference core (`cfar_stream`)" if reference
+                else f"a copy of the RTL under test (top module `{pm.module}`)")
+    return render(
+        "README.md.tmpl", version=tool_version(), module=pm.module,
+        spec_name=Path(spec.source).name if spec.source else "a block spec", block=block,
+        words=config["words"], total_words=config["total_words"], frames=config["frames"],
+        gap_percent=config["gap_percent"], stall_percent=config["stall_percent"], seed=config["seed"],
+        rtl_note=rtl_note, tb_note="" if pm.is_reference else " (instantiating the adapter)",
+        clock=pm.clock, reset=pm.reset, reset_level="high" if pm.reset_active_high else "low",
+        in_ports=", ".join(sig[r] for r in ("in_data", "in_valid", "in_ready", "in_last")),
+        out_ports=", ".join(s for s in (sig[r] for r in ("out_data", "out_valid", "out_ready", "out_last")) if s),
+    )
+
+
+def read_config(folder: str | Path) -> dict:
+    """The ``bench_config.json`` of a generated folder.
+
+    Raises
+    ------
+    SpecError
+        When the folder holds no readable configuration of this format.
+    """
+    path = Path(folder) / CONFIG_NAME
+    try:
+        config = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError) as exc:
+        raise SpecError("FOLDER", f"no readable {CONFIG_NAME} in {str(folder)!r} ({exc})",
+                        "a folder written by cfarvec testbench") from None
+    require(isinstance(config, dict) and config.get("format") == CONFIG_FORMAT, "FOLDER",
+            f"{str(path)!r} is not a cfarvec testbench configuration", "a folder written by cfarvec testbench")
+    return config
