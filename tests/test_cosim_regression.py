@@ -188,7 +188,9 @@ module my_cfar #(
     // >= 0: flip the det bit of every word whose CUT equals this value.
     parameter integer CORRUPT_CUT = -1,
     // 1: toggle the top CUT bit while a word waits for dout_rdy (breaks the handshake rule, not the word).
-    parameter integer WOBBLE = 0
+    parameter integer WOBBLE = 0,
+    // >= 0: after this many output words, hide dout_vld (every later word is lost).
+    parameter integer LOSE_AFTER = -1
 ) (
     input  wire clock,
     input  wire rst_n,
@@ -203,16 +205,20 @@ module my_cfar #(
     localparam integer W = INPUT_BITS + THRESHOLD_BITS + 3;
     wire [W-1:0] w;
     wire unused_last;
+    wire core_vld;
     reg  wobble_reg = 1'b0;
+    integer sent = 0;
     cfar_stream #(.INPUT_BITS(INPUT_BITS), .REF_CELLS(REF_CELLS), .GUARD_CELLS(GUARD_CELLS), .KIND(KIND),
         .EDGE(EDGE), .SUM_BITS(SUM_BITS), .ALPHA_INT(ALPHA_INT), .DROP_BITS(DROP_BITS),
         .THRESHOLD_FRAC_BITS(THRESHOLD_FRAC_BITS), .THRESHOLD_BITS(THRESHOLD_BITS), .ROUNDING(ROUNDING),
         .OVERFLOW(OVERFLOW), .COMPARE_GE(COMPARE_GE), .TRUNCATE_PARTIALS(TRUNCATE_PARTIALS),
         .PIPELINE_STAGES(PIPELINE_STAGES), .SRST_LEVEL(SRST_LEVEL))
       u_core (.clk(clock), .srst(rst_n), .s_axis_tdata(din), .s_axis_tvalid(din_vld), .s_axis_tready(din_rdy),
-              .s_axis_tlast(din_end), .m_axis_tdata(w), .m_axis_tvalid(dout_vld), .m_axis_tready(dout_rdy),
+              .s_axis_tlast(din_end), .m_axis_tdata(w), .m_axis_tvalid(core_vld), .m_axis_tready(dout_rdy),
               .m_axis_tlast(unused_last));
     always @(posedge clock) wobble_reg <= ~wobble_reg;
+    always @(posedge clock) if (core_vld && dout_rdy) sent <= sent + 1;
+    assign dout_vld = core_vld && (LOSE_AFTER < 0 || sent < LOSE_AFTER);
     wire flip = (CORRUPT_CUT >= 0) && (w[INPUT_BITS-1:0] == CORRUPT_CUT);
     wire wob  = (WOBBLE != 0) && dout_vld && !dout_rdy && wobble_reg;
     wire [W-1:0] w2 = w ^ ({{(W-1){1'b0}}, flip} << (INPUT_BITS + THRESHOLD_BITS))
@@ -301,6 +307,31 @@ def test_a_handshake_violation_is_caught(tmp_path, user_rtl, mode):
     assert r.mismatches == 0 and r.words_compared == r.words_expected
     assert r.details["handshake_errors"] > 0
     assert any("handshake" in p for p in r.problems)
+
+
+@pytest.mark.parametrize("mode", ["bulk", "interactive"])
+def test_lost_words_end_in_a_timeout(tmp_path, user_rtl, mode):
+    r = cosim(_user_spec({"LOSE_AFTER": 300}), rtl=user_rtl, mode=mode, samples=600, folder=tmp_path / "b")
+    assert not r.passed
+    assert r.words_compared == 300 and r.missing_words == r.words_expected - 300 and r.mismatches == 0
+    assert r.details["timed_out"]
+    assert any("never arrived" in p for p in r.problems) and any("timed out" in p for p in r.problems)
+
+
+@pytest.mark.parametrize("mode", ["bulk", "interactive", "verilog"])
+def test_reference_core_with_an_active_low_reset(tmp_path, mode):
+    data = _spec("so-r2-g1-16bit-halfup-wrap-skip-ge").to_dict()
+    data["ports"] = {"reset_active": "low"}
+    r = cosim(spec_from_dict(data), mode=mode, samples=600, folder=tmp_path / "b")
+    assert r.passed, f"{r.problems}"
+
+
+@pytest.mark.parametrize("mode, suffix", [("bulk", ".fst"), ("verilog", ".vcd")])
+def test_waveform_on_request(tmp_path, mode, suffix):
+    r = cosim(_spec("ca-r1-g0-1bit-floor-saturate-zeropad"), mode=mode, samples=100, waves=True,
+              folder=tmp_path / "b")
+    assert r.passed
+    assert r.waves is not None and r.waves.suffix == suffix and r.waves.stat().st_size > 0
 
 
 # ---------------------------------------------------------------- the CLI: exit codes and one-line errors
