@@ -345,6 +345,9 @@ def _check_percent(name: str, value) -> int:
     return value
 
 
+_SAFE_FILE_NAME = re.compile(r"[A-Za-z0-9_][A-Za-z0-9_.+-]*")
+
+
 def resolve_rtl(rtl: Sequence[str | Path]) -> list[Path]:
     """Check the ``--rtl`` files: they exist and their names differ (they are copied into one folder)."""
     files = []
@@ -352,6 +355,8 @@ def resolve_rtl(rtl: Sequence[str | Path]) -> list[Path]:
     for f in rtl:
         p = Path(f)
         require(p.is_file(), "--rtl", f"no file {str(p)!r}", "existing Verilog or SystemVerilog files")
+        require(_SAFE_FILE_NAME.fullmatch(p.name) is not None, "--rtl", f"file name {p.name!r}",
+                "a file name of letters, digits and _ . + - (it is written into the generated Makefile)")
         require(p.name not in names, "--rtl", f"two files named {p.name!r}", "files with distinct names")
         require(p.suffix in (".v", ".sv", ".vh", ".svh"), "--rtl", f"{p.name!r} is not a .v or .sv file",
                 "Verilog (.v, .vh) or SystemVerilog (.sv, .svh) files")

@@ -201,6 +201,17 @@ def test_reference_core_refuses_what_it_lacks(tmp_path):
     assert list(tmp_path.iterdir()) == []
 
 
+@pytest.mark.parametrize("name", ["my core.v", "$(shell true).v", "core;rm.sv", "-x.v"])
+def test_rtl_file_names_that_could_inject_are_refused(tmp_path, name):
+    # The names are written into the generated Makefile and configuration.
+    f = tmp_path / name
+    f.write_text("module core; endmodule\n")
+    with pytest.raises(SpecError) as err:
+        write_testbench(_spec(), tmp_path / "out", rtl=[f], check_ports=False)
+    assert err.value.field == "--rtl"
+    assert not (tmp_path / "out").exists()
+
+
 def test_rtl_files_with_the_same_name_are_refused(tmp_path):
     (tmp_path / "a").mkdir()
     (tmp_path / "b").mkdir()
