@@ -45,6 +45,7 @@ def _spec(**changes):
     data = json.loads(json.dumps(SMALL))
     for section, values in changes.items():
         data.setdefault(section, {}).update(values)
+        data[section] = {k: v for k, v in data[section].items() if v is not None}
     return spec_from_dict(data)
 
 
@@ -92,6 +93,19 @@ def test_config_matches_the_vector_set(folder):
     assert cfg["port_map"]["module"] == "cfar_stream"
     assert cfg["modes"]["interactive"]["toplevel"] == "cfar_stream"
     assert cfg["modes"]["interactive"]["parameters"] == core_parameters(_spec())
+
+
+def test_config_spec_rebuilds_the_manifests_constant(tmp_path):
+    # The manifest's integer A is authoritative (docs/bit-true.md section 4); the benches
+    # rebuild the spec from the configuration and must land on the same words layout and A.
+    spec = _spec(detector={"design_pfa": 1e-4, "alpha": None})
+    out = tmp_path / "b"
+    cfg = write_testbench(spec, out, check_ports=False).config
+    manifest = json.loads((out / "vectors" / "manifest.json").read_text())
+    assert "design_pfa" not in cfg["spec"]["detector"] and cfg["design_pfa"] == 1e-4
+    rebuilt = spec_from_dict(cfg["spec"])
+    assert rebuilt.alpha_int == manifest["derived"]["alpha_int"]
+    assert rebuilt.output_bits == manifest["words"]["expected"]["bits"]
 
 
 def test_readme_names_the_module_and_how_to_run(folder):
