@@ -39,6 +39,7 @@ import os
 import re
 import shutil
 import string
+import sys
 import tempfile
 from dataclasses import dataclass
 from pathlib import Path
@@ -346,6 +347,7 @@ def _check_percent(name: str, value) -> int:
 
 
 _SAFE_FILE_NAME = re.compile(r"[A-Za-z0-9_][A-Za-z0-9_.+-]*")
+_SAFE_PATH = re.compile(r"/?([A-Za-z0-9_.+-]+/)*[A-Za-z0-9_.+-]+")
 
 
 def resolve_rtl(rtl: Sequence[str | Path]) -> list[Path]:
@@ -540,7 +542,9 @@ def _resolved_spec_dict(spec: BlockSpec) -> dict:
 def _makefile(config: dict) -> str:
     m = config["modes"]["verilog"]
     params = " \\\n".join(f"\t  -P{VERILOG_TOP}.{k}={v}" for k, v in m["parameters"].items()) + " \\"
-    return render("Makefile.tmpl", version=tool_version(), gap_percent=config["gap_percent"],
+    # The interpreter that has cfarvec (and so cocotb) installed, when its path is safe to write unquoted.
+    python = sys.executable if sys.executable and _SAFE_PATH.fullmatch(sys.executable) else "python3"
+    return render("Makefile.tmpl", version=tool_version(), python=python, gap_percent=config["gap_percent"],
                   stall_percent=config["stall_percent"], seed=config["seed"], words=config["words"],
                   verilog_sources=" ".join(m["sources"]), verilog_parameters=params,
                   stimulus=config["stimulus"], expected=config["expected"])
