@@ -23,8 +23,8 @@ CORE_TOP = "cfar_stream"
 BENCH_TOP = "cfar_stream_tb"
 #: Folder holding the Verilog sources.
 RTL_DIR = Path(__file__).resolve().parent / "rtl"
-#: The core's source files (sub-modules first), for simulators and synthesis.
-CORE_SOURCES = (RTL_DIR / "cfar_pipe_delay.v", RTL_DIR / "cfar_stream.v")
+#: The core's source files, for simulators and synthesis.
+CORE_SOURCES = (RTL_DIR / "cfar_stream.v",)
 #: The testbench source.
 BENCH_SOURCE = RTL_DIR / "cfar_stream_tb.v"
 

@@ -25,36 +25,37 @@ from hdl_tb.synthesis import SynthesisError, classify, parse_stat, synthesize  #
 DEFAULT = {"detector": {"kind": "ca", "ref_cells_per_side": 16, "guard_cells_per_side": 2, "alpha": 17.28},
            "fixed": {"input_bits": 16}}
 
-# Verbatim from a Yosys 0.23 run of `synth -flatten -top cfar_stream; stat` on this core.
+# Verbatim from a Yosys 0.23 run of `synth -flatten -top cfar_stream; check -assert; stat` on this core
+# (default configuration).
 YOSYS_023_STAT = """
-6. Printing statistics.
+20. Printing statistics.
 
 === cfar_stream ===
 
-   Number of wires:               1311
-   Number of wire bits:           4642
-   Number of public wires:         109
-   Number of public wire bits:    3436
+   Number of wires:               1267
+   Number of wire bits:           2223
+   Number of public wires:          31
+   Number of public wire bits:     887
    Number of memories:               0
    Number of memory bits:            0
    Number of processes:              0
-   Number of cells:               2088
-     $_ANDNOT_                     321
-     $_AND_                        100
+   Number of cells:               2052
+     $_ANDNOT_                     417
+     $_AND_                         67
      $_DFFE_PN_                    592
-     $_DFFE_PP_                     59
-     $_NAND_                        63
-     $_NOR_                        163
-     $_NOT_                         52
-     $_ORNOT_                       45
-     $_OR_                         178
-     $_SDFFCE_PN0P_                 21
+     $_DFFE_PP_                     18
+     $_NAND_                        64
+     $_NOR_                        147
+     $_NOT_                         59
+     $_ORNOT_                       57
+     $_OR_                         116
+     $_SDFFCE_PN0P_                 22
      $_SDFFE_PP0N_                  96
-     $_SDFFE_PP0P_                   8
-     $_XNOR_                       152
-     $_XOR_                        238
+     $_SDFFE_PP0P_                   7
+     $_XNOR_                       151
+     $_XOR_                        239
 
-End of script. Logfile hash: 6de3bd9d07, CPU: user 1.21s system 0.05s
+End of script. Logfile hash: 7dbd1de2e4, CPU: user 2.04s system 0.02s, MEM: 28.67 MB peak
 """
 
 
@@ -75,12 +76,12 @@ def xilinx_report(default_spec):
 
 def test_parser_reads_a_yosys_stat_report():
     n_cells, cells = parse_stat(YOSYS_023_STAT)
-    assert n_cells == 2088
-    assert cells["$_DFFE_PN_"] == 592 and cells["$_XOR_"] == 238
+    assert n_cells == 2052
+    assert cells["$_DFFE_PN_"] == 592 and cells["$_XOR_"] == 239
     assert sum(cells.values()) == n_cells
     counts = classify(cells)
-    assert counts["flip_flops"] == 592 + 59 + 21 + 96 + 8
-    assert counts["gates"] == 321 + 100 + 63 + 163 + 52 + 45 + 178 + 152 + 238
+    assert counts["flip_flops"] == 592 + 18 + 22 + 96 + 7
+    assert counts["gates"] == 417 + 67 + 64 + 147 + 59 + 57 + 116 + 151 + 239
     assert counts["latches"] == 0
 
 

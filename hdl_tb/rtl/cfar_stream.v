@@ -21,7 +21,13 @@
 //   3: + a register after the multiplier,
 //   4: + a register after the statistic,
 //   5..: + PIPELINE_STAGES-4 delay registers before the output register.
-// See docs/reference-core.md.
+// The whole pipeline holds while a word waits at the output (m_axis_tready
+// low); s_axis_tready is combinational from m_axis_tready.
+//
+// Simulation speed: each combinational segment is a function called in the
+// clocked block of the register that ends it, so a simulator evaluates it
+// once per clock edge instead of once per input event; the window is one
+// packed vector shifted by INPUT_BITS. See docs/reference-core.md.
 module cfar_stream #(
     // Sample width W_in in bits (unsigned samples), 1..32.
     parameter integer INPUT_BITS = 16,
@@ -117,10 +123,12 @@ module cfar_stream #(
     localparam [64:0] NAF_NZ   = (A_EXT >> 1) ^ NAF_X3;
     localparam [64:0] NAF_POS  = NAF_X3 & NAF_NZ;
     localparam [64:0] NAF_NEG  = (A_EXT >> 1) & NAF_NZ;
-    // Optional register stages (see the header comment).
-    localparam integer USE_STAT_REG = (PIPELINE_STAGES >= 4) ? 1 : 0;
-    localparam integer USE_MUL_REG  = (PIPELINE_STAGES >= 3) ? 1 : 0;
-    localparam integer PAD_STAGES   = (PIPELINE_STAGES > 4) ? PIPELINE_STAGES - 4 : 0;
+    // Delay registers before the output register (PIPELINE_STAGES >= 5), at least 1 for the declaration.
+    localparam integer PAD_STAGES = (PIPELINE_STAGES > 4) ? PIPELINE_STAGES - 4 : 1;
+    // Fields travelling beside the datapath: {last, window-valid, cut}.
+    localparam integer SIDE_W = IB + 2;
+    // A at the multiplier width.
+    localparam [MUL_BITS-1:0] ALPHA_MUL = ALPHA_INT;
 
     // ------------------------------------------------------------------
     // Illegal parameter combinations stop elaboration: the instantiated
@@ -189,18 +197,20 @@ module cfar_stream #(
     // ------------------------------------------------------------------
     wire rst = (SRST_LEVEL != 0) ? srst : ~srst;
 
-    reg                  out_valid_reg;
-    reg  [OUT_BITS-1:0]  out_word_reg;
-    reg  [DRAIN_BITS-1:0] drain_cnt_reg;
-    wire [DRAIN_BITS-1:0] drain_cnt_next;
+    // valid_pipe_reg[k]: pipeline stage k+1 holds a word; the top bit is m_axis_tvalid.
+    reg  [PIPELINE_STAGES-1:0] valid_pipe_reg;
+    reg  [OUT_BITS-1:0]        out_word_reg;
+    reg  [DRAIN_BITS-1:0]      drain_cnt_reg;
+    wire [DRAIN_BITS-1:0]      drain_cnt_next;
 
+    wire out_valid = valid_pipe_reg[PIPELINE_STAGES-1];
     // The whole pipeline moves unless a word waits at the output.
-    wire advance  = ~out_valid_reg | m_axis_tready;
-    wire draining = (drain_cnt_reg != {DRAIN_BITS{1'b0}});
+    wire advance   = ~out_valid | m_axis_tready;
+    wire draining  = (drain_cnt_reg != {DRAIN_BITS{1'b0}});
     assign s_axis_tready = advance & ~draining & ~rst;
-    wire accept   = s_axis_tvalid & s_axis_tready;
+    wire accept    = s_axis_tvalid & s_axis_tready;
     // A step shifts one cell into the window: an accepted sample or a drain zero.
-    wire step     = accept | (advance & draining);
+    wire step      = accept | (advance & draining);
 
     localparam [DRAIN_BITS-1:0] DRAIN_LOAD = HALF;
     localparam [DRAIN_BITS-1:0] DRAIN_ONE  = 1;
@@ -223,35 +233,26 @@ module cfar_stream #(
     // `last` tag. Cell values are not reset: every tap is masked by its body
     // tag, so a reset or drain cell counts as 0 exactly as the contract says.
     // ------------------------------------------------------------------
-    reg  [WIN*IB-1:0] win_reg;
-    reg  [WIN-1:0]    body_reg;
-    reg  [HALF:0]     last_reg;
+    reg  [WIN*IB-1:0]   win_reg;
+    reg  [WIN-1:0]      body_reg;
+    reg  [HALF:0]       last_reg;
     reg  [SUM_BITS-1:0] sum_lead_reg;
     reg  [SUM_BITS-1:0] sum_lag_reg;
 
-    wire [IB-1:0]     enter_value = accept ? s_axis_tdata : {IB{1'b0}};
-    wire [WIN*IB-1:0] win_in_ext  = enter_value;
-    wire [WIN-1:0]    body_in_ext = accept;
-    wire [HALF:0]     last_in_ext = accept & s_axis_tlast;
-    wire [WIN*IB-1:0] win_next    = (win_reg << IB) | win_in_ext;
-    wire [WIN-1:0]    body_next   = (body_reg << 1) | body_in_ext;
-    wire [HALF:0]     last_next   = (last_reg << 1) | last_in_ext;
+    // The cell entering at a step: the accepted sample, or a drain zero (a
+    // step that is not a drain step is an accepted sample).
+    wire [IB-1:0] enter_value = draining ? {IB{1'b0}} : s_axis_tdata;
 
-    // Running-sum taps (cells about to move across a region boundary).
+    // Running-sum taps: the cells about to cross a region boundary.
     wire [IB-1:0] lead_leave = win_reg[(REF_CELLS-1)*IB +: IB] & {IB{body_reg[REF_CELLS-1]}};
     wire [IB-1:0] lag_enter  = win_reg[(HALF+GUARD_CELLS)*IB +: IB] & {IB{body_reg[HALF+GUARD_CELLS]}};
     wire [IB-1:0] lag_leave  = win_reg[(WIN-1)*IB +: IB] & {IB{body_reg[WIN-1]}};
-    wire [SUM_BITS-1:0] enter_ext      = enter_value;
-    wire [SUM_BITS-1:0] lead_leave_ext = lead_leave;
-    wire [SUM_BITS-1:0] lag_enter_ext  = lag_enter;
-    wire [SUM_BITS-1:0] lag_leave_ext  = lag_leave;
-    // Modulo 2^SUM_BITS, as docs/bit-true.md section 3.
-    wire [SUM_BITS-1:0] sum_lead_next = sum_lead_reg + enter_ext - lead_leave_ext;
-    wire [SUM_BITS-1:0] sum_lag_next  = sum_lag_reg + lag_enter_ext - lag_leave_ext;
 
+    // The shift and the sums are written in the clocked blocks so a
+    // simulator evaluates them once per step, not once per input event.
     always @(posedge clk) begin
         if (step) begin
-            win_reg <= win_next;
+            win_reg <= {win_reg[(WIN-1)*IB-1:0], enter_value};
         end
     end
 
@@ -262,219 +263,204 @@ module cfar_stream #(
             sum_lead_reg <= {SUM_BITS{1'b0}};
             sum_lag_reg  <= {SUM_BITS{1'b0}};
         end else if (step) begin
-            body_reg     <= body_next;
-            last_reg     <= last_next;
-            sum_lead_reg <= sum_lead_next;
-            sum_lag_reg  <= sum_lag_next;
+            body_reg     <= {body_reg[WIN-2:0], accept};
+            last_reg     <= {last_reg[HALF-1:0], accept & s_axis_tlast};
+            // Modulo 2^SUM_BITS (the expression has the register's width), docs/bit-true.md section 3.
+            sum_lead_reg <= sum_lead_reg + enter_value - lead_leave;
+            sum_lag_reg  <= sum_lag_reg + lag_enter - lag_leave;
         end
     end
+
+    // ------------------------------------------------------------------
+    // Datapath functions, one per step of the contract
+    // ------------------------------------------------------------------
+    // Noise statistic S (docs/bit-true.md section 3). The parameter tests
+    // come first so a simulator skips the code of the other modes.
+    function [STAT_BITS-1:0] noise_statistic;
+        input [SUM_BITS-1:0] lag;
+        input [SUM_BITS-1:0] lead;
+        input                lag_full;
+        input                lead_full;
+        reg   [STAT_BITS-1:0] lag_e;
+        reg   [STAT_BITS-1:0] lead_e;
+        begin
+            lag_e  = lag;
+            lead_e = lead;
+            if (KIND == 0) begin
+                noise_statistic = lag_e + lead_e;
+            end else if (KIND == 1) begin
+                noise_statistic = (lag_e >= lead_e) ? lag_e : lead_e;
+            end else begin
+                noise_statistic = (lag_e <= lead_e) ? lag_e : lead_e;
+            end
+            // One-sided policy at a frame edge: only the complete side counts
+            // (at most one side is incomplete since frames are >= W long).
+            if (EDGE == 2) begin
+                if (!lead_full) begin
+                    noise_statistic = (KIND == 0) ? (lag_e << 1) : lag_e;
+                end else if (!lag_full) begin
+                    noise_statistic = (KIND == 0) ? (lead_e << 1) : lead_e;
+                end
+            end
+        end
+    endfunction
+
+    // Product S * A, or the truncated shift-and-add of A's NAF digits (section 5).
+    function [MUL_BITS-1:0] scaled_product;
+        input [STAT_BITS-1:0] stat;
+        reg   [MUL_BITS-1:0]  stat_e;
+        reg   [MUL_BITS-1:0]  pos;
+        reg   [MUL_BITS-1:0]  neg;
+        integer               k;
+        begin
+            stat_e = stat;
+            if (TRUNCATE_PARTIALS == 0) begin
+                scaled_product = stat_e * ALPHA_MUL;
+            end else begin
+                // T0 = sum_i sign_i * ((S << p_i) >> d); positive and negative digits summed apart.
+                pos = {MUL_BITS{1'b0}};
+                neg = {MUL_BITS{1'b0}};
+                for (k = 0; k <= ALPHA_BITS; k = k + 1) begin
+                    if (NAF_POS[k]) pos = pos + ((stat_e << k) >> DROP_BITS);
+                    if (NAF_NEG[k]) neg = neg + ((stat_e << k) >> DROP_BITS);
+                end
+                scaled_product = pos - neg;
+            end
+        end
+    endfunction
+
+    // Rounding, overflow, decision and word packing (sections 5 to 8).
+    // side = {last, window-valid, cut}.
+    function [OUT_BITS-1:0] output_word;
+        input [MUL_BITS-1:0] prod;
+        input [SIDE_W-1:0]   side;
+        reg   [RB-1:0]             rnd;
+        reg   [XB-1:0]             t0;
+        reg   [THRESHOLD_BITS-1:0] t;
+        reg   [CB-1:0]             c_cmp;
+        reg                        det;
+        begin
+            // Rounding (section 5): floor, half-up, half-even.
+            rnd = prod;
+            t0  = (rnd + RND_HALF) >> ROUND_DROP;
+            if (ROUNDING == 2 && ROUND_DROP > 0) begin
+                // An exact tie rounded up to an odd value goes back down to the even one.
+                if ((rnd & RND_MASK) == RND_TIE && t0[0]) t0 = t0 - T_ONE;
+            end
+            // Overflow (section 6).
+            if (OVERFLOW == 0 && t0 > T_MAX) t = T_MAX[THRESHOLD_BITS-1:0];
+            else                             t = t0[THRESHOLD_BITS-1:0];
+            // Decision (section 7): C = x << F_T against T.
+            c_cmp = side[IB-1:0];
+            det   = (COMPARE_GE != 0) ? ((c_cmp << THRESHOLD_FRAC_BITS) >= t)
+                                      : ((c_cmp << THRESHOLD_FRAC_BITS) > t);
+            // Skip policy: no decision where the window is not valid.
+            if (EDGE == 0) begin
+                if (!side[IB]) begin
+                    t   = {THRESHOLD_BITS{1'b0}};
+                    det = 1'b0;
+                end
+            end
+            output_word = {side[IB+1:IB], det, t, side[IB-1:0]};
+        end
+    endfunction
 
     // ------------------------------------------------------------------
     // Forming: the fields of the word whose CUT sits at position HALF after
-    // the step. With one pipeline stage they come from the _next values;
-    // otherwise the window registers themselves are the first stage.
+    // the step. With one pipeline stage they are the values the registers
+    // are about to take; otherwise the window registers are the first stage.
     // ------------------------------------------------------------------
-    reg form_valid_reg;
-    wire form_valid_next = step & body_next[HALF];
-
-    always @(posedge clk) begin
-        if (rst) begin
-            form_valid_reg <= 1'b0;
-        end else if (advance) begin
-            form_valid_reg <= form_valid_next;
-        end
-    end
-
-    wire                f_valid;
-    wire [IB-1:0]       f_cut;
+    wire                form_valid_next = step & body_reg[HALF-1];
     wire [SUM_BITS-1:0] f_lag;
     wire [SUM_BITS-1:0] f_lead;
     wire                f_lag_full;
     wire                f_lead_full;
-    wire                f_last;
+    wire [SIDE_W-1:0]   f_side;
 
     generate
-        if (PIPELINE_STAGES == 1) begin : g_form_comb
-            assign f_valid     = form_valid_next;
-            assign f_cut       = win_next[HALF*IB +: IB];
+        if (PIPELINE_STAGES == 1) begin : g_form_next
+            // The sums after this step, modulo 2^SUM_BITS as in the clocked block above.
+            wire [SUM_BITS-1:0] sum_lag_next  = sum_lag_reg + lag_enter - lag_leave;
+            wire [SUM_BITS-1:0] sum_lead_next = sum_lead_reg + enter_value - lead_leave;
             assign f_lag       = sum_lag_next;
             assign f_lead      = sum_lead_next;
-            assign f_lag_full  = body_next[2*HALF];
-            assign f_lead_full = body_next[0];
-            assign f_last      = last_next[HALF];
+            assign f_lag_full  = body_reg[2*HALF-1];
+            assign f_lead_full = accept;
+            assign f_side      = {last_reg[HALF-1], body_reg[2*HALF-1] & accept, win_reg[(HALF-1)*IB +: IB]};
         end else begin : g_form_reg
-            assign f_valid     = form_valid_reg;
-            assign f_cut       = win_reg[HALF*IB +: IB];
             assign f_lag       = sum_lag_reg;
             assign f_lead      = sum_lead_reg;
             assign f_lag_full  = body_reg[2*HALF];
             assign f_lead_full = body_reg[0];
-            assign f_last      = last_reg[HALF];
+            assign f_side      = {last_reg[HALF], body_reg[2*HALF] & body_reg[0], win_reg[HALF*IB +: IB]};
         end
     endgenerate
 
-    // ------------------------------------------------------------------
-    // Statistic S (docs/bit-true.md section 3)
-    // ------------------------------------------------------------------
-    // Only one side complete: happens at a frame's edges; one-sided uses that side.
-    wire use_lag_only  = (EDGE == 2) & ~f_lead_full;
-    wire use_lead_only = (EDGE == 2) & ~f_lag_full;
-    wire [STAT_BITS-1:0] lag_ext  = f_lag;
-    wire [STAT_BITS-1:0] lead_ext = f_lead;
-    wire [STAT_BITS-1:0] side_sel = use_lag_only ? lag_ext : lead_ext;
-    wire [STAT_BITS-1:0] both_sel;
+    // Valid bits of all stages, one packed shift register.
+    wire [PIPELINE_STAGES-1:0] valid_in_ext = form_valid_next;
 
-    generate
-        if (KIND == 0) begin : g_ca
-            assign both_sel = lag_ext + lead_ext;
-        end else if (KIND == 1) begin : g_go
-            assign both_sel = (lag_ext >= lead_ext) ? lag_ext : lead_ext;
-        end else begin : g_so
-            assign both_sel = (lag_ext <= lead_ext) ? lag_ext : lead_ext;
-        end
-    endgenerate
-
-    wire one_side = use_lag_only | use_lead_only;
-    // CA with one side: 2 * S_side; GO/SO: S_side.
-    wire [STAT_BITS-1:0] side_stat = (KIND == 0) ? (side_sel << 1) : side_sel;
-    wire [STAT_BITS-1:0] a_stat    = one_side ? side_stat : both_sel;
-    wire                 a_v       = f_lag_full & f_lead_full;
-
-    // Fields travelling with the statistic: {last, v, cut}.
-    localparam integer SIDE_W = IB + 2;
-    wire [SIDE_W-1:0] a_side = {f_last, a_v, f_cut};
-
-    wire                 b_valid;
-    wire [STAT_BITS-1:0] b_stat;
-    wire [SIDE_W-1:0]    b_side;
-
-    cfar_pipe_delay #(.WIDTH(STAT_BITS + SIDE_W), .DEPTH(USE_STAT_REG)) u_stat_stage (
-        .clk      (clk),
-        .rst      (rst),
-        .en       (advance),
-        .in_valid (f_valid),
-        .in_data  ({a_side, a_stat}),
-        .out_valid(b_valid),
-        .out_data ({b_side, b_stat})
-    );
-
-    // ------------------------------------------------------------------
-    // Product (docs/bit-true.md section 5)
-    // ------------------------------------------------------------------
-    wire [MUL_BITS-1:0] b_mul;
-
-    generate
-        if (TRUNCATE_PARTIALS == 0) begin : g_full_mul
-            wire [MUL_BITS-1:0] stat_ext  = b_stat;
-            wire [MUL_BITS-1:0] alpha_ext = ALPHA_INT;
-            assign b_mul = stat_ext * alpha_ext;
-        end else begin : g_trunc_mul
-            // T0 = sum_i sign_i * ((S << p_i) >> d) over the NAF digits (sign_i, p_i) of A.
-            localparam integer NP = ALPHA_BITS + 1;
-            wire [NP*MUL_BITS-1:0] pos_acc;
-            wire [NP*MUL_BITS-1:0] neg_acc;
-            genvar k;
-            for (k = 0; k < NP; k = k + 1) begin : g_digit
-                wire [MUL_BITS-1:0] stat_ext = b_stat;
-                wire [MUL_BITS-1:0] term     = (stat_ext << k) >> DROP_BITS;
-                wire [MUL_BITS-1:0] pos_prev;
-                wire [MUL_BITS-1:0] neg_prev;
-                if (k == 0) begin : g_first
-                    assign pos_prev = {MUL_BITS{1'b0}};
-                    assign neg_prev = {MUL_BITS{1'b0}};
-                end else begin : g_rest
-                    assign pos_prev = pos_acc[(k-1)*MUL_BITS +: MUL_BITS];
-                    assign neg_prev = neg_acc[(k-1)*MUL_BITS +: MUL_BITS];
-                end
-                if (NAF_POS[k]) begin : g_pos
-                    assign pos_acc[k*MUL_BITS +: MUL_BITS] = pos_prev + term;
-                end else begin : g_pos_skip
-                    assign pos_acc[k*MUL_BITS +: MUL_BITS] = pos_prev;
-                end
-                if (NAF_NEG[k]) begin : g_neg
-                    assign neg_acc[k*MUL_BITS +: MUL_BITS] = neg_prev + term;
-                end else begin : g_neg_skip
-                    assign neg_acc[k*MUL_BITS +: MUL_BITS] = neg_prev;
-                end
-            end
-            assign b_mul = pos_acc[(NP-1)*MUL_BITS +: MUL_BITS] - neg_acc[(NP-1)*MUL_BITS +: MUL_BITS];
-        end
-    endgenerate
-
-    wire                c_valid;
-    wire [MUL_BITS-1:0] c_mul;
-    wire [SIDE_W-1:0]   c_side;
-
-    cfar_pipe_delay #(.WIDTH(MUL_BITS + SIDE_W), .DEPTH(USE_MUL_REG)) u_mul_stage (
-        .clk      (clk),
-        .rst      (rst),
-        .en       (advance),
-        .in_valid (b_valid),
-        .in_data  ({b_side, b_mul}),
-        .out_valid(c_valid),
-        .out_data ({c_side, c_mul})
-    );
-
-    // ------------------------------------------------------------------
-    // Rounding, overflow, decision, word (docs/bit-true.md sections 5-8)
-    // ------------------------------------------------------------------
-    wire [IB-1:0] c_cut  = c_side[IB-1:0];
-    wire          c_v    = c_side[IB];
-    wire          c_last = c_side[IB+1];
-
-    wire [RB-1:0] rnd_in  = c_mul;
-    wire [RB-1:0] rnd_sum = rnd_in + RND_HALF;
-    wire [RB-1:0] rnd_q   = rnd_sum >> ROUND_DROP;
-    wire          rnd_tie = (ROUNDING == 2) && (ROUND_DROP > 0) && ((rnd_in & RND_MASK) == RND_TIE);
-    wire [RB-1:0] t0      = (rnd_tie & rnd_q[0]) ? rnd_q - RND_ONE : rnd_q;
-
-    wire [XB-1:0] t0_ext  = t0;
-    wire          t_over  = (t0_ext > T_MAX);
-    wire [THRESHOLD_BITS-1:0] t_fit = ((OVERFLOW == 0) && t_over) ? T_MAX[THRESHOLD_BITS-1:0]
-                                                                  : t0_ext[THRESHOLD_BITS-1:0];
-
-    wire [CB-1:0] cmp_cut_ext = c_cut;
-    wire [CB-1:0] cmp_cut     = cmp_cut_ext << THRESHOLD_FRAC_BITS;
-    wire [CB-1:0] cmp_t       = t_fit;
-    wire          det_raw     = (COMPARE_GE != 0) ? (cmp_cut >= cmp_t) : (cmp_cut > cmp_t);
-
-    // Skip policy: no decision where the window is not valid.
-    wire                      skip_cell = (EDGE == 0) & ~c_v;
-    wire [THRESHOLD_BITS-1:0] t_out     = skip_cell ? {THRESHOLD_BITS{1'b0}} : t_fit;
-    wire                      det_out   = ~skip_cell & det_raw;
-    wire [OUT_BITS-1:0]       c_word    = {c_last, c_v, det_out, t_out, c_cut};
-
-    wire                d_valid;
-    wire [OUT_BITS-1:0] d_word;
-
-    cfar_pipe_delay #(.WIDTH(OUT_BITS), .DEPTH(PAD_STAGES)) u_pad_stages (
-        .clk      (clk),
-        .rst      (rst),
-        .en       (advance),
-        .in_valid (c_valid),
-        .in_data  (c_word),
-        .out_valid(d_valid),
-        .out_data (d_word)
-    );
-
-    // ------------------------------------------------------------------
-    // Output register (the last pipeline stage)
-    // ------------------------------------------------------------------
     always @(posedge clk) begin
         if (rst) begin
-            out_valid_reg <= 1'b0;
+            valid_pipe_reg <= {PIPELINE_STAGES{1'b0}};
         end else if (advance) begin
-            out_valid_reg <= d_valid;
+            valid_pipe_reg <= (valid_pipe_reg << 1) | valid_in_ext;
         end
     end
 
-    always @(posedge clk) begin
-        if (advance) begin
-            out_word_reg <= d_word;
-        end
-    end
+    // ------------------------------------------------------------------
+    // Data stages: each register loads the function of the one before it.
+    // ------------------------------------------------------------------
+    reg [STAT_BITS-1:0]         stat_reg;       // after the statistic (PIPELINE_STAGES >= 4)
+    reg [SIDE_W-1:0]            stat_side_reg;
+    reg [MUL_BITS-1:0]          mul_reg;        // after the product (PIPELINE_STAGES >= 3)
+    reg [SIDE_W-1:0]            mul_side_reg;
+    reg [PAD_STAGES*OUT_BITS-1:0] pad_reg;      // delay words (PIPELINE_STAGES >= 5), newest at the LSBs
 
-    assign m_axis_tvalid = out_valid_reg;
+    generate
+        if (PIPELINE_STAGES <= 2) begin : g_out_direct
+            always @(posedge clk) begin
+                if (advance) begin
+                    out_word_reg <= output_word(scaled_product(noise_statistic(f_lag, f_lead, f_lag_full,
+                                                                               f_lead_full)), f_side);
+                end
+            end
+        end else begin : g_out_staged
+            if (PIPELINE_STAGES == 3) begin : g_mul_from_sums
+                always @(posedge clk) begin
+                    if (advance) begin
+                        mul_reg      <= scaled_product(noise_statistic(f_lag, f_lead, f_lag_full, f_lead_full));
+                        mul_side_reg <= f_side;
+                    end
+                end
+            end else begin : g_stat_then_mul
+                always @(posedge clk) begin
+                    if (advance) begin
+                        stat_reg      <= noise_statistic(f_lag, f_lead, f_lag_full, f_lead_full);
+                        stat_side_reg <= f_side;
+                        mul_reg       <= scaled_product(stat_reg);
+                        mul_side_reg  <= stat_side_reg;
+                    end
+                end
+            end
+
+            if (PIPELINE_STAGES <= 4) begin : g_out_from_mul
+                always @(posedge clk) begin
+                    if (advance) begin
+                        out_word_reg <= output_word(mul_reg, mul_side_reg);
+                    end
+                end
+            end else begin : g_out_from_pads
+                always @(posedge clk) begin
+                    if (advance) begin
+                        pad_reg      <= (pad_reg << OUT_BITS) | output_word(mul_reg, mul_side_reg);
+                        out_word_reg <= pad_reg[PAD_STAGES*OUT_BITS-1 -: OUT_BITS];
+                    end
+                end
+            end
+        end
+    endgenerate
+
+    assign m_axis_tvalid = out_valid;
     assign m_axis_tdata  = out_word_reg;
     assign m_axis_tlast  = out_word_reg[OUT_BITS-1];
 

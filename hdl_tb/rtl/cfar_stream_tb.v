@@ -76,7 +76,7 @@ module cfar_stream_tb;
     parameter integer GAP_PERCENT = 0;
     // Percent of cycles the sink holds m_axis_tready low.
     parameter integer STALL_PERCENT = 0;
-    // Seed of the $random sequence shared by gaps and stalls.
+    // Seed of the pseudo-random gap and stall sequences.
     parameter integer SEED = 1;
     // 1 = dump waveforms to DUMP_FILE.
     parameter integer DUMP = 0;
@@ -169,15 +169,17 @@ module cfar_stream_tb;
     integer in_idx     = 0;   // next stimulus word to offer
     integer out_idx    = 0;   // next expected word
     integer n_errors   = 0;
-    integer frame_idx  = 0;   // frame of the next expected word
-    integer sample_idx = 0;   // index within that frame
     integer drain_left = -1;  // cycles of s_axis_tready low still expected (-1: not in a drain)
-    reg     running    = 1'b0;
+    reg     active     = 1'b0; // between reset release and the last expected word
     reg     done       = 1'b0;
     reg     have_first = 1'b0;
+    reg     check_drain;       // STALL_PERCENT = 0: drain timing is exact
+    reg     check_latency;     // GAP_PERCENT = 0 and STALL_PERCENT = 0: latency is exact
     reg [8*400-1:0] first_error;
     reg             prev_hold = 1'b0;       // last cycle: m_tvalid high, not taken
     reg [OUT_W-1:0] prev_word;
+    reg [IN_W-1:0]  stim_word;
+    reg [OUT_W:0]   exp_word;               // {last marker again (for m_axis_tlast), expected word}
 
     task note_error;
         input [8*400-1:0] text;
@@ -185,6 +187,45 @@ module cfar_stream_tb;
             if (!have_first) begin
                 first_error = text;
                 have_first  = 1'b1;
+            end
+            n_errors = n_errors + 1;
+        end
+    endtask
+
+    // Describe a wrong word: its frame and sample index (counted from the
+    // expected last markers), CUT and the expected and received fields.
+    integer scan;
+    integer frame_idx;
+    integer sample_idx;
+    task report_mismatch;
+        input [OUT_W-1:0] expected;
+        input [OUT_W-1:0] got;
+        input             got_tlast;
+        begin
+            frame_idx  = 0;
+            sample_idx = 0;
+            for (scan = 0; scan < out_idx; scan = scan + 1) begin
+                if (expect_mem[scan][LAST_BIT]) begin
+                    frame_idx  = frame_idx + 1;
+                    sample_idx = 0;
+                end else begin
+                    sample_idx = sample_idx + 1;
+                end
+            end
+            if (n_errors < MAX_REPORTS) begin
+                $display("MISMATCH word %0d frame %0d sample %0d cut %0d: expected T=%0d det=%0d valid=%0d last=%0d, got cut %0d T=%0d det=%0d valid=%0d last=%0d (tlast %0d) [exp %h got %h]",
+                    out_idx, frame_idx, sample_idx, expected[INPUT_BITS-1:0],
+                    expected[T_LSB +: THRESHOLD_BITS], expected[DET_BIT], expected[V_BIT], expected[LAST_BIT],
+                    got[INPUT_BITS-1:0], got[T_LSB +: THRESHOLD_BITS], got[DET_BIT], got[V_BIT], got[LAST_BIT],
+                    got_tlast, expected, got);
+            end
+            if (!have_first) begin
+                $sformat(first_error,
+                    "word %0d frame %0d sample %0d cut %0d: expected T=%0d det=%0d valid=%0d last=%0d, got cut %0d T=%0d det=%0d valid=%0d last=%0d",
+                    out_idx, frame_idx, sample_idx, expected[INPUT_BITS-1:0],
+                    expected[T_LSB +: THRESHOLD_BITS], expected[DET_BIT], expected[V_BIT], expected[LAST_BIT],
+                    got[INPUT_BITS-1:0], got[T_LSB +: THRESHOLD_BITS], got[DET_BIT], got[V_BIT], got[LAST_BIT]);
+                have_first = 1'b1;
             end
             n_errors = n_errors + 1;
         end
@@ -199,12 +240,22 @@ module cfar_stream_tb;
         end
     endtask
 
-    // Random percentage draws in 0..99 from two independent $random sequences
-    // (IEEE Std 1364-2005, 17.9.1), one for the source and one for the sink.
-    integer    gap_seed;
-    integer    stall_seed;
-    reg [31:0] gap_rand;
-    reg [31:0] stall_rand;
+    // Pseudo-random percentage draws in 0..99 from two xorshift32 sequences
+    // (G. Marsaglia, "Xorshift RNGs", J. Statistical Software 8(14), 2003,
+    // shifts 13, 17, 5), one for the source and one for the sink. Plain
+    // Verilog arithmetic: the same seed gives the same run on any simulator.
+    reg [31:0] gap_state;
+    reg [31:0] stall_state;
+
+    function [31:0] xorshift32;
+        input [31:0] x;
+        reg   [31:0] y;
+        begin
+            y = x ^ (x << 13);
+            y = y ^ (y >> 17);
+            xorshift32 = y ^ (y << 5);
+        end
+    endfunction
 
     initial begin
         stim_name   = STIM_FILE;
@@ -226,8 +277,9 @@ module cfar_stream_tb;
         if ($value$plusargs("SEED=%d", seed)) ;
         if ($value$plusargs("N_WORDS=%d", n_words)) ;
         if ($value$plusargs("TIMEOUT_CYCLES=%d", timeout)) ;
-        gap_seed   = seed;
-        stall_seed = seed ^ 32'h5A5A_3C3C;
+        // xorshift32 needs a non-zero state.
+        gap_state   = (seed == 0) ? 32'h2545_F491 : seed;
+        stall_state = ((seed ^ 32'h5A5A_3C3C) == 0) ? 32'h2545_F491 : (seed ^ 32'h5A5A_3C3C);
 
         if (DUMP != 0 || $test$plusargs("DUMP")) begin
             $dumpfile(dump_name);
@@ -281,100 +333,82 @@ module cfar_stream_tb;
                  n_words, gap_pct, stall_pct, seed);
 
         // Synchronous reset for a few cycles.
+        check_drain   = (stall_pct == 0);
+        check_latency = (gap_pct == 0 && stall_pct == 0);
+        m_tready      = 1'b1;
         repeat (4) @(posedge clk);
-        srst    <= (SRST_LEVEL != 0) ? 1'b0 : 1'b1;
-        running <= 1'b1;
+        srst   <= (SRST_LEVEL != 0) ? 1'b0 : 1'b1;
+        active <= (n_words > 0);
         if (n_words == 0) begin
             @(posedge clk);
             finish_run;
         end
     end
 
-    // ---------------- source: stimulus with random gaps ----------------
-    // Once s_tvalid is high it stays high with the same data until taken.
+    // ---------------- source, sink and checks ----------------
+    // One clocked process (a simulator wakes it once per cycle). The source
+    // keeps s_tvalid high with the same word until it is taken; the sink
+    // draws m_tready each cycle.
     integer next_idx;
+    integer latency;
     always @(posedge clk) begin
-        if (running && !done) begin
-            // Drain check (only meaningful without backpressure).
-            if (drain_left > 0) begin
-                if (stall_pct == 0 && s_tready) begin
-                    note_error("s_axis_tready high during the drain");
-                    $display("ERROR: cycle %0d: s_axis_tready high during the drain", cycle);
+        if (active) begin
+            // Drain check (exact only without backpressure).
+            if (drain_left >= 0) begin
+                if (check_drain) begin
+                    if (drain_left > 0 && s_tready) begin
+                        note_error("s_axis_tready high during the drain");
+                        $display("ERROR: cycle %0d: s_axis_tready high during the drain", cycle);
+                    end else if (drain_left == 0 && !s_tready) begin
+                        note_error("s_axis_tready still low after R+G drain cycles");
+                        $display("ERROR: cycle %0d: s_axis_tready still low after R+G drain cycles", cycle);
+                    end
                 end
                 drain_left = drain_left - 1;
-            end else if (drain_left == 0) begin
-                if (stall_pct == 0 && !s_tready) begin
-                    note_error("s_axis_tready still low after R+G drain cycles");
-                    $display("ERROR: cycle %0d: s_axis_tready still low after R+G drain cycles", cycle);
-                end
-                drain_left = -1;
             end
+
+            // Source.
             next_idx = in_idx;
-            if (s_tvalid && s_tready) begin
-                in_cycle[in_idx] = cycle;
-                next_idx = in_idx + 1;
-                if (s_tlast) begin
-                    drain_left = HALF;
+            if (s_tvalid) begin
+                if (s_tready) begin
+                    if (check_latency) in_cycle[in_idx] = cycle;
+                    next_idx = in_idx + 1;
+                    if (s_tlast) drain_left = HALF;
                 end
             end
-            in_idx <= next_idx;
-            gap_rand = $random(gap_seed);
             if (!s_tvalid || s_tready) begin
-                if (next_idx < n_words && (gap_rand % 100) >= gap_pct) begin
+                if (gap_pct > 0) gap_state = xorshift32(gap_state);
+                if (next_idx < n_words && (gap_pct == 0 || (gap_state % 100) >= gap_pct)) begin
+                    stim_word = stim_mem[next_idx];
                     s_tvalid <= 1'b1;
-                    s_tdata  <= stim_mem[next_idx][INPUT_BITS-1:0];
-                    s_tlast  <= stim_mem[next_idx][INPUT_BITS];
+                    s_tdata  <= stim_word[INPUT_BITS-1:0];
+                    s_tlast  <= stim_word[INPUT_BITS];
                 end else begin
                     s_tvalid <= 1'b0;
                     s_tdata  <= {INPUT_BITS{1'bx}};
                     s_tlast  <= 1'bx;
                 end
             end
-        end
-    end
+            in_idx = next_idx;
 
-    // ---------------- sink: random backpressure, checks ----------------
-    reg [OUT_W-1:0] exp_word;
-    integer latency;
-    always @(posedge clk) begin
-        if (running && !done) begin
-            cycle <= cycle + 1;
-            // Output handshake rule (ARM IHI 0051A, 2.2.1).
-            if (prev_hold && (!m_tvalid || m_tdata !== prev_word)) begin
-                note_error("m_axis_tvalid dropped or m_axis_tdata changed before the transfer");
-                $display("ERROR: cycle %0d: m_axis_tvalid dropped or m_axis_tdata changed before the transfer",
-                         cycle);
+            // Output handshake rule (ARM IHI 0051A, 2.2.1): a word offered and
+            // not taken stays offered, unchanged.
+            if (prev_hold) begin
+                if (!m_tvalid || m_tdata !== prev_word) begin
+                    note_error("m_axis_tvalid dropped or m_axis_tdata changed before the transfer");
+                    $display("ERROR: cycle %0d: m_axis_tvalid dropped or m_axis_tdata changed before the transfer",
+                             cycle);
+                end
             end
-            prev_hold <= m_tvalid && !m_tready;
-            prev_word <= m_tdata;
 
-            if (m_tvalid && m_tready) begin
-                $fwrite(out_fd, "%h\n", m_tdata);
-                if (out_idx >= n_words) begin
-                    note_error("more output words than input words");
-                    $display("ERROR: cycle %0d: extra output word %h", cycle, m_tdata);
-                end else begin
-                    exp_word = expect_mem[out_idx];
-                    if (m_tdata !== exp_word || m_tlast !== exp_word[LAST_BIT]) begin
-                        if (n_errors < MAX_REPORTS) begin
-                            $display("MISMATCH word %0d frame %0d sample %0d cut %0d: expected T=%0d det=%0d valid=%0d last=%0d, got cut %0d T=%0d det=%0d valid=%0d last=%0d (tlast %0d) [exp %h got %h]",
-                                out_idx, frame_idx, sample_idx, exp_word[INPUT_BITS-1:0],
-                                exp_word[T_LSB +: THRESHOLD_BITS], exp_word[DET_BIT], exp_word[V_BIT],
-                                exp_word[LAST_BIT], m_tdata[INPUT_BITS-1:0], m_tdata[T_LSB +: THRESHOLD_BITS],
-                                m_tdata[DET_BIT], m_tdata[V_BIT], m_tdata[LAST_BIT], m_tlast, exp_word, m_tdata);
-                        end
-                        if (!have_first) begin
-                            $sformat(first_error,
-                                "word %0d frame %0d sample %0d cut %0d: expected T=%0d det=%0d valid=%0d last=%0d, got cut %0d T=%0d det=%0d valid=%0d last=%0d",
-                                out_idx, frame_idx, sample_idx, exp_word[INPUT_BITS-1:0],
-                                exp_word[T_LSB +: THRESHOLD_BITS], exp_word[DET_BIT], exp_word[V_BIT],
-                                exp_word[LAST_BIT], m_tdata[INPUT_BITS-1:0], m_tdata[T_LSB +: THRESHOLD_BITS],
-                                m_tdata[DET_BIT], m_tdata[V_BIT], m_tdata[LAST_BIT]);
-                            have_first = 1'b1;
-                        end
-                        n_errors = n_errors + 1;
-                    end
-                    if (gap_pct == 0 && stall_pct == 0) begin
+            // Sink.
+            if (m_tvalid) begin
+                if (m_tready) begin
+                    prev_hold = 1'b0;
+                    $fwrite(out_fd, "%h\n", m_tdata);
+                    exp_word = {expect_mem[out_idx][LAST_BIT], expect_mem[out_idx]};
+                    if ({m_tlast, m_tdata} !== exp_word) report_mismatch(exp_word[OUT_W-1:0], m_tdata, m_tlast);
+                    if (check_latency) begin
                         latency = cycle - in_cycle[out_idx];
                         if (latency != HALF + PIPELINE_STAGES) begin
                             if (n_errors < MAX_REPORTS)
@@ -383,23 +417,26 @@ module cfar_stream_tb;
                             note_error("latency differs from R+G+PIPELINE_STAGES at full rate");
                         end
                     end
-                    if (exp_word[LAST_BIT]) begin
-                        frame_idx  = frame_idx + 1;
-                        sample_idx = 0;
-                    end else begin
-                        sample_idx = sample_idx + 1;
+                    out_idx = out_idx + 1;
+                    if (out_idx == n_words) begin
+                        // Stop checking; from the next cycle the tail process counts any extra word.
+                        active = 1'b0;
+                        done  <= 1'b1;
                     end
+                end else begin
+                    prev_hold = 1'b1;
+                    prev_word = m_tdata;
                 end
-                out_idx = out_idx + 1;
-                if (out_idx == n_words) begin
-                    // Give a stray extra word a few cycles to show up, then stop.
-                    done <= 1'b1;
-                end
+            end else begin
+                prev_hold = 1'b0;
             end
 
-            stall_rand = $random(stall_seed);
-            m_tready <= ((stall_rand % 100) >= stall_pct);
+            if (stall_pct > 0) begin
+                stall_state = xorshift32(stall_state);
+                m_tready <= ((stall_state % 100) >= stall_pct);
+            end
 
+            cycle = cycle + 1;
             if (cycle >= timeout) begin
                 $display("ERROR: timeout after %0d cycles, %0d of %0d words received", cycle, out_idx, n_words);
                 if (!have_first) begin
