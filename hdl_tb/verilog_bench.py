@@ -24,12 +24,12 @@ import subprocess
 import tempfile
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Mapping
+from typing import Mapping, Sequence
 
 from refmodel.block_spec import BlockSpec
 from refmodel.errors import SpecError
 
-from .core_params import BENCH_SOURCE, BENCH_TOP, CORE_SOURCES, CORE_TOP, core_parameters
+from .core_params import BENCH_SOURCE, BENCH_TOP, CORE_SOURCES, core_parameters
 
 #: Default file names inside a vector folder.
 STIMULUS_FILE = "stimulus.hex"
@@ -120,15 +120,16 @@ def _default_build_root() -> Path:
     return Path(tempfile.gettempdir()) / f"cfarvec-verilog-bench-{os.getuid() if hasattr(os, 'getuid') else 0}"
 
 
-def _source_digest() -> str:
+def _source_digest(sources: Sequence[Path]) -> str:
     h = hashlib.sha256()
-    for src in (*CORE_SOURCES, BENCH_SOURCE):
+    for src in sources:
         h.update(src.read_bytes())
     return h.hexdigest()
 
 
 def compile_bench(params: Mapping[str, int], *, max_words: int = 65536, generation: str = "2005",
-                  build_root: str | Path | None = None) -> Path:
+                  build_root: str | Path | None = None, core_sources: Sequence[str | Path] | None = None,
+                  bench_source: str | Path | None = None) -> Path:
     """Compile the testbench for one set of core parameters; return the ``vvp`` image.
 
     Parameters
@@ -144,6 +145,9 @@ def compile_bench(params: Mapping[str, int], *, max_words: int = 65536, generati
     build_root : path, optional
         Folder for the cached images (default: a folder in the system temp
         directory). Each parameter set gets its own sub-folder.
+    core_sources, bench_source : optional
+        Verilog files to use instead of the reference core and the
+        testbench (for example a modified copy of either).
 
     Returns
     -------
@@ -162,7 +166,10 @@ def compile_bench(params: Mapping[str, int], *, max_words: int = 65536, generati
     if generation not in ("2005", "2012"):
         raise SpecError("generation", f"got {generation!r}", '"2005" or "2012"')
     all_params = {**{k: int(v) for k, v in params.items()}, "MAX_WORDS": max(1, int(max_words))}
-    key = hashlib.sha256(repr((sorted(all_params.items()), generation, _source_digest())).encode()).hexdigest()[:16]
+    sources = [Path(p).resolve() for p in (core_sources if core_sources is not None else CORE_SOURCES)]
+    sources.append(Path(bench_source).resolve() if bench_source is not None else BENCH_SOURCE)
+    key = hashlib.sha256(repr((sorted(all_params.items()), generation, [str(p) for p in sources],
+                               _source_digest(sources))).encode()).hexdigest()[:16]
     root = Path(build_root) if build_root is not None else _default_build_root()
     out_dir = root / key
     image = out_dir / "bench.vvp"
@@ -172,7 +179,7 @@ def compile_bench(params: Mapping[str, int], *, max_words: int = 65536, generati
     tmp = out_dir / f"bench.{os.getpid()}.tmp"
     cmd = [iverilog, f"-g{generation}", "-o", str(tmp), "-s", BENCH_TOP]
     cmd += [f"-P{BENCH_TOP}.{name}={value}" for name, value in all_params.items()]
-    cmd += [str(s) for s in (*CORE_SOURCES, BENCH_SOURCE)]
+    cmd += [str(src) for src in sources]
     proc = subprocess.run(cmd, capture_output=True, text=True)
     output = proc.stdout + proc.stderr
     if proc.returncode != 0 or not tmp.is_file():
@@ -192,7 +199,9 @@ def run_bench(spec: BlockSpec | Mapping[str, int], folder: str | Path, *,
               stimulus: str = STIMULUS_FILE, expected: str = EXPECTED_FILE,
               received: str | Path | None = None, gap_percent: int = 0, stall_percent: int = 0,
               seed: int = 1, dump: str | Path | None = None, generation: str = "2005",
-              build_root: str | Path | None = None, timeout_cycles: int = 0) -> BenchResult:
+              build_root: str | Path | None = None, timeout_cycles: int = 0,
+              core_sources: Sequence[str | Path] | None = None,
+              bench_source: str | Path | None = None) -> BenchResult:
     """Run the pure-Verilog testbench on a folder of stimulus and expected hex files.
 
     Parameters
@@ -223,6 +232,8 @@ def run_bench(spec: BlockSpec | Mapping[str, int], folder: str | Path, *,
         See :func:`compile_bench`.
     timeout_cycles : int, optional
         Cycles before the bench gives up; 0 = its automatic bound.
+    core_sources, bench_source : optional
+        See :func:`compile_bench`.
 
     Returns
     -------
@@ -253,7 +264,8 @@ def run_bench(spec: BlockSpec | Mapping[str, int], folder: str | Path, *,
     if n_stim is None or n_exp is None:
         depth = max(depth, 1 << 20)
     max_words = 1 << max(0, (depth - 1).bit_length())
-    image = compile_bench(params, max_words=max_words, generation=generation, build_root=build_root)
+    image = compile_bench(params, max_words=max_words, generation=generation, build_root=build_root,
+                          core_sources=core_sources, bench_source=bench_source)
     _, vvp = find_tools()
     received_path = Path(received) if received is not None else image.parent / RECEIVED_FILE
     args = [vvp, "-n", str(image),

@@ -34,7 +34,7 @@ from refmodel.word_format import output_field_offsets, pack_input
 pytestmark = pytest.mark.skipif(shutil.which("iverilog") is None or shutil.which("vvp") is None,
                                 reason="Icarus Verilog (iverilog, vvp) is not installed; run `make tools`")
 
-from hdl_tb.core_params import core_parameters  # noqa: E402
+from hdl_tb.core_params import BENCH_SOURCE, CORE_SOURCES, core_parameters  # noqa: E402
 from hdl_tb.verilog_bench import BenchCompileError, compile_bench, count_hex_words, run_bench  # noqa: E402
 
 LONG = bool(os.environ.get("CFARVEC_LONG"))
@@ -229,6 +229,39 @@ def test_bench_reports_a_missing_word(tmp_path):
     _write_set(tmp_path, spec, samples, last, words[:-1])
     result = run_bench(spec, tmp_path, build_root=tmp_path / "b")
     assert not result.passed
+
+
+def _timing_set(tmp_path):
+    spec = _spec("ca", 4, 1, alpha=3.0, input_bits=8)
+    _, model = _model()
+    samples, last = _stimulus(spec, np.random.default_rng(12), 150)
+    _write_set(tmp_path, spec, samples, last, _pack_words(spec, model(spec, samples, last)))
+    return spec
+
+
+def test_bench_catches_a_core_with_one_stage_too_many(tmp_path):
+    """Same words, one cycle late: only the latency check (R + G + pipeline_stages, bit-true.md 9) sees it."""
+    spec = _timing_set(tmp_path)
+    bench = BENCH_SOURCE.read_text(encoding="ascii")
+    wrong = bench.replace(".PIPELINE_STAGES    (PIPELINE_STAGES),", ".PIPELINE_STAGES    (PIPELINE_STAGES + 1),")
+    assert wrong != bench
+    (tmp_path / "tb_late.v").write_text(wrong, encoding="ascii")
+    late = run_bench(spec, tmp_path, build_root=tmp_path / "b", bench_source=tmp_path / "tb_late.v")
+    assert not late.passed and late.first_mismatch == "latency differs from R+G+PIPELINE_STAGES at full rate"
+    # With stalls the latency is not fixed, the words are still right.
+    assert run_bench(spec, tmp_path, stall_percent=30, build_root=tmp_path / "b",
+                     bench_source=tmp_path / "tb_late.v").passed
+
+
+def test_bench_catches_a_drain_one_step_too_long(tmp_path):
+    """An R+G+1 drain leaves every word intact; the drain check (bit-true.md 9) must still fail it."""
+    spec = _timing_set(tmp_path)
+    core = CORE_SOURCES[0].read_text(encoding="ascii")
+    wrong = core.replace("DRAIN_LOAD = HALF;", "DRAIN_LOAD = HALF + 1;")
+    assert wrong != core
+    (tmp_path / "core_long_drain.v").write_text(wrong, encoding="ascii")
+    result = run_bench(spec, tmp_path, build_root=tmp_path / "b", core_sources=[tmp_path / "core_long_drain.v"])
+    assert not result.passed and result.first_mismatch == "s_axis_tready still low after R+G drain cycles"
 
 
 @pytest.mark.parametrize("generation", ["2005", "2012"])
