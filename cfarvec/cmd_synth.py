@@ -1,0 +1,84 @@
+"""``cfarvec synth``: Yosys cell counts of the reference core built for a block spec.
+
+The work is done by :func:`hdl_tb.synthesis.synthesize`. Exit codes: 0 with
+the counts printed, 1 when Yosys fails on the core, 2 for bad input (a bad
+spec, a spec the core cannot build such as ``os`` or ``circular``, Yosys not
+installed).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+
+from hdl_tb.synthesis import FLOWS, SynthesisError, synthesize
+from refmodel.block_spec import load_spec
+
+_DESCRIPTION = """\
+Synthesise the reference Verilog core (hdl_tb/rtl/cfar_stream.v) with the
+parameters of SPEC using Yosys, flattened and out of context, and print its
+cell counts: LUTs, flip-flops, DSP blocks, carry cells, shift-register LUTs
+(SRLs), simple gates and the total. Flows: generic (Yosys 'synth': simple
+gates and flip-flops, no LUTs) and xilinx (7-series primitives). A netlist
+with latches is refused. Exit status 0: counts printed; 1: Yosys failed;
+2: bad input (the core has no os kind and no circular policy)."""
+
+#: Rows of the text table: (label, SynthReport.summary() key); "other" is what no class counts
+#: (for example inverters and wide multiplexers of the xilinx flow).
+ROWS = (("LUTs", "luts"), ("flip-flops", "flip_flops"), ("DSP blocks", "dsps"), ("carries", "carries"),
+        ("SRLs", "srls"), ("simple gates", "gates"), ("other", "other"), ("total cells", "cells"))
+
+
+def add_parser(subparsers) -> argparse.ArgumentParser:
+    """Register the ``synth`` sub-command.
+
+    Parameters
+    ----------
+    subparsers : argparse._SubParsersAction
+        From :meth:`argparse.ArgumentParser.add_subparsers`.
+
+    Returns
+    -------
+    argparse.ArgumentParser
+        The new sub-parser (``func`` is set to :func:`run`).
+    """
+    p = subparsers.add_parser("synth", help="Yosys cell counts of the reference core for a spec",
+                              description=_DESCRIPTION, formatter_class=argparse.RawDescriptionHelpFormatter)
+    p.add_argument("spec", metavar="SPEC", help="block spec (TOML)")
+    p.add_argument("--flow", choices=tuple(FLOWS), default="generic", help="Yosys flow (default generic)")
+    p.add_argument("--json", action="store_true", help="print one JSON object instead of the table")
+    p.set_defaults(func=run)
+    return p
+
+
+def format_table(spec_name: str, counts: dict) -> str:
+    """The counts as a small text table.
+
+    Parameters
+    ----------
+    spec_name : str
+        What to call the spec in the heading.
+    counts : dict
+        :meth:`hdl_tb.synthesis.SynthReport.summary` of the run.
+    """
+    other = counts["cells"] - sum(counts[key] for _, key in ROWS[:-2])
+    lines = [f"cfar_stream for {spec_name}, Yosys flow {counts['flow']}"]
+    lines += [f"  {label:<13}{other if key == 'other' else counts[key]:>8}" for label, key in ROWS]
+    return "\n".join(lines)
+
+
+def run(args: argparse.Namespace) -> int:
+    """Synthesise and print the counts; 0 on success, 1 when Yosys fails."""
+    spec = load_spec(args.spec)
+    try:
+        report = synthesize(spec, args.flow)
+    except SynthesisError as exc:
+        print(f"cfarvec synth: error: {str(exc).splitlines()[0]}", file=sys.stderr)
+        return 1
+    counts = report.summary()
+    if args.json:
+        print(json.dumps({"spec": args.spec, "top": report.top, **counts, "cell_types": report.cells}))
+    else:
+        print(format_table(args.spec, counts))
+    return 0
