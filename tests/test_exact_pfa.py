@@ -242,7 +242,7 @@ def test_ca_converges_to_finn_johnson_formula():
     ``(alpha - 1) / 2`` LSBs and multiplies an exponential tail by about
     ``1 + (alpha - 1) / (2 m)`` (first-order derivation, no source).
     """
-    spec = make_spec("ca", r=4, pfa=1e-6, input_bits=24, alpha_frac_bits=16, threshold_frac_bits=8)
+    spec = make_spec("ca", r=4, pfa=1e-6, input_bits=24, alpha_frac_bits=16, threshold_frac_bits=4)
     n, a = 8, spec.realised_alpha
     formula = (1.0 + a / n) ** (-n)
     errs = []
@@ -264,7 +264,7 @@ def test_go_so_os_converge_to_float_formulas(kind, rank):
     The error shrinks as 1/m (8 times the noise level: at least 5 times smaller)
     and is below 1.5% at 2^12 LSBs.
     """
-    spec = make_spec(kind, r=4, pfa=1e-5, rank=rank, input_bits=24, alpha_frac_bits=16, threshold_frac_bits=8)
+    spec = make_spec(kind, r=4, pfa=1e-5, rank=rank, input_bits=24, alpha_frac_bits=16, threshold_frac_bits=4)
     formula = td.pfa_from_alpha(kind, 8, spec.realised_alpha, rank)
     coarse = abs(ep.trigger_law(spec, 2.0**9).pfa() / formula - 1)
     fine = abs(ep.trigger_law(spec, 2.0**12).pfa() / formula - 1)
