@@ -5,10 +5,12 @@ Run with ``make demo``. Writes ``demo_out/``:
 - ``vectors/``   golden vector set with its manifest (``cfarvec vectors``)
 - ``testbench/`` the generated testbench folder the co-simulation ran in
 - ``frame.png``  one scenario frame: samples, float and fixed thresholds, detections
+- ``study/``     quantisation study of the example's word widths (CSV, plots, summary.md)
 
 Steps: threshold design with the fixed-point report (``cfarvec design
 --spec``), vectors, their self-check (``cfarvec check``), co-simulation of
-the reference Verilog core against the vectors, and the plot.
+the reference Verilog core against the vectors, the plot, and the
+quantisation study (``cfarvec study``).
 """
 
 from __future__ import annotations
@@ -91,6 +93,8 @@ def main() -> int:
          ["cosim", str(SPEC), "--mode", "bulk", "--keep", str(OUT / "testbench"), "--force"])
     n = plot_frame(SPEC, vec, OUT / "frame.png")
     print(f"\n=== plot: {OUT / 'frame.png'} ({n} detections on the plotted frame)")
+    step("quantisation study (what each word width costs)",
+         ["study", str(SPEC), "-o", str(OUT / "study"), "--force", "--no-progress"])
     print("demo finished")
     return 0
 
