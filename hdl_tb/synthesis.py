@@ -48,7 +48,7 @@ _PARAM_ERROR = re.compile(r"(\w+)_PARAMETER_ERROR__(\w+)")
 _FF = re.compile(r"^(\$_(S?DFF|DFFE|SDFF|SDFFE|SDFFCE|ALDFF|ALDFFE|DFFSR|DFFSRE)_\w*|\$(s?dff|dffe|sdffe|sdffce|adff|"
                  r"adffe|aldff|aldffe|dffsr|dffsre)|FD[RSCP]E(_1)?)$")
 _LATCH = re.compile(r"^(\$_DLATCH\w*|\$_SR_\w*|\$dlatch|\$adlatch|\$dlatchsr|\$sr|LD[CP]E(_1)?|LDCPE)$")
-_LUT = re.compile(r"^(LUT[1-6]|LUT6_2|\$lut)$")
+_LUT = re.compile(r"^(LUT[1-6]|LUT6_2|INV|\$lut)$")  # an INV primitive is placed as a LUT1
 _CARRY = re.compile(r"^(CARRY4|CARRY8|\$_?alu|\$__CARRY\w*)$")
 _DSP = re.compile(r"^(DSP48E1|DSP48E2|DSP48A1|MULT18X18\w*|\$__MUL\w*)$")
 _SRL = re.compile(r"^(SRL16E?|SRLC16E|SRLC32E)$")
