@@ -501,7 +501,7 @@ def _generate(folder: Path, spec: BlockSpec, pm: PortMap, rtl_files: list[Path],
         "format": CONFIG_FORMAT,
         "format_version": CONFIG_FORMAT_VERSION,
         "tool_version": tool_version(),
-        "spec": _resolved_spec_dict(spec),
+        "spec": spec.to_dict(resolved=True),
         "design_pfa": spec.design_pfa,
         "spec_source": spec.source,
         "reference_core": reference,
@@ -529,14 +529,6 @@ def _generate(folder: Path, spec: BlockSpec, pm: PortMap, rtl_files: list[Path],
     (folder / "Makefile").write_text(_makefile(config), encoding="utf-8")
     (folder / "README.md").write_text(_readme(spec, pm, config, reference), encoding="utf-8")
     return config
-
-
-def _resolved_spec_dict(spec: BlockSpec) -> dict:
-    """The spec as a mapping with alpha as resolved (no design_pfa), so the benches rebuild it without scipy."""
-    data = spec.to_dict()
-    data["detector"].pop("design_pfa", None)
-    data["detector"]["alpha"] = spec.alpha
-    return data
 
 
 def _makefile(config: dict) -> str:

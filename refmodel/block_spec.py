@@ -315,8 +315,17 @@ class BlockSpec:
         da = abs(self.alpha_int - self.alpha_target) / 2.0 ** self.product_frac_bits
         return s * da + r + 1e-9 * (1.0 + s)
 
-    def to_dict(self) -> dict:
-        """The spec as plain TOML-able sections that :func:`spec_from_dict` reads back to an equal spec."""
+    def to_dict(self, resolved: bool = False) -> dict:
+        """The spec as plain TOML-able sections that :func:`spec_from_dict` reads back to an equal spec.
+
+        Parameters
+        ----------
+        resolved : bool
+            False: the alpha source as the spec gave it (``alpha`` or
+            ``design_pfa``). True: always the resolved ``alpha``, so the
+            constant is rebuilt without redoing the threshold design (what
+            manifests and bench configurations record).
+        """
         det = {
             "kind": self.kind,
             "ref_cells_per_side": self.ref_per_side,
@@ -326,8 +335,8 @@ class BlockSpec:
         }
         if self.rank is not None:
             det["rank"] = self.rank
-        # Exactly one of the two, as the spec file had it, so the dict loads again.
-        if self.design_pfa is not None:
+        # Exactly one of the two, so the dict loads again.
+        if self.design_pfa is not None and not resolved:
             det["design_pfa"] = self.design_pfa
         else:
             det["alpha"] = self.alpha

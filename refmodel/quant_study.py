@@ -389,9 +389,7 @@ class SweepPoint:
 
 def _base_data(spec: BlockSpec) -> dict:
     """The spec as a mapping to vary: automatic widths left to be re-derived per point."""
-    d = spec.to_dict()
-    if spec.design_pfa is not None:
-        d["detector"].pop("alpha", None)  # to_dict writes both; spec_from_dict accepts one
+    d = spec.to_dict(resolved=True)
     fx = d["fixed"]
     if fx["sum_bits"] == spec.side_sum_bits:
         fx.pop("sum_bits")

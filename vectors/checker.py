@@ -129,9 +129,6 @@ def _spec_of(m: dict) -> BlockSpec:
     if not isinstance(spec_dict, dict):
         raise _Mismatch(Finding(NAME, "no spec table", field="spec"))
     data = {k: dict(v) if isinstance(v, dict) else v for k, v in spec_dict.items()}
-    det = data.get("detector")
-    if isinstance(det, dict) and "alpha" in det:
-        det.pop("design_pfa", None)  # the resolved alpha is authoritative
     try:
         return spec_from_dict(data)
     except SpecError as exc:

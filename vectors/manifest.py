@@ -81,7 +81,8 @@ def build_manifest(spec: BlockSpec, settings: dict, sources: list[dict], cases: 
         "format_version": SET_FORMAT_VERSION,
         "tool_version": tool_version(),
         "seed": settings["seed"],
-        "spec": spec.to_dict(),
+        "spec": spec.to_dict(resolved=True),
+        "design_pfa": spec.design_pfa,  # the spec resolves it to spec.detector.alpha
         "derived": spec.derived(),
         "latency_cycles": spec.latency_cycles,
         "words": word_layout(spec),
