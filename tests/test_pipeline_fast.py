@@ -31,6 +31,8 @@ from refmodel.errors import SpecError
 from refmodel.float_cfar import cfar_1d
 from refmodel.pipeline_fast import FastPipeline, run_fast, statistic
 from refmodel.word_format import FIELDS, PipelineOutput
+from test_block_spec import (constant_a, default_threshold_bits, divisor, dropped_bits, float_allowance, naf,
+                             threshold_error_bound)
 
 KINDS = ("ca", "go", "so", "os")
 EDGES = ("skip", "zero-pad", "one-sided", "circular")
@@ -51,29 +53,19 @@ HYP = settings(
 # --------------------------------------------------------------------------
 
 
-def naf(a: int) -> list[tuple[int, int]]:
-    """Non-adjacent form of a >= 0 as (sign, power) pairs.
+def direct_words(spec, samples, last, threshold_bits: int | None = None) -> PipelineOutput:
+    """docs/bit-true.md sections 1-8 read literally (the arithmetic contract of this project).
 
-    D. Hankerson, A. Menezes, S. Vanstone, "Guide to Elliptic Curve
-    Cryptography", Springer, 2004, Algorithm 3.30 (computing the NAF of a
-    positive integer).
+    Every constant comes from the spec's input fields through the helpers of
+    ``test_block_spec.py``: A (section 4: floor(target + 1/2), or the nearest K-digit value by
+    brute force), d = F_A + s - F_T (section 5) and, unless ``threshold_bits`` gives the width the
+    spec was written with, the default threshold width of section 6.
     """
-    digits, power = [], 0
-    while a > 0:
-        if a % 2:
-            k = 2 - a % 4
-            a -= k
-            digits.append((k, power))
-        a //= 2
-        power += 1
-    return digits
-
-
-def direct_words(spec, samples, last) -> PipelineOutput:
-    """docs/bit-true.md sections 1-8 read literally (the arithmetic contract of this project)."""
     r, g = spec.ref_per_side, spec.guard_per_side
     h = r + g
-    a, d = spec.alpha_int, spec.drop_bits  # section 4: the integer A is authoritative
+    a, d = constant_a(spec), dropped_bits(spec)
+    w_t = default_threshold_bits(spec) if threshold_bits is None else threshold_bits
+    f_t = spec.threshold_frac_bits
     words = []
     start = 0
     for end in [i for i, m in enumerate(last) if m]:
@@ -119,10 +111,10 @@ def direct_words(spec, samples, last) -> PipelineOutput:
                     q = (p + 2 ** (d - 1)) >> d
                     t0 = q - 1 if p & (2**d - 1) == 2 ** (d - 1) and q % 2 == 1 else q
             # Section 6.
-            top = 2**spec.threshold_bits - 1
-            t = min(t0, top) if spec.overflow == "saturate" else t0 % 2**spec.threshold_bits
+            top = 2**w_t - 1
+            t = min(t0, top) if spec.overflow == "saturate" else t0 % 2**w_t
             # Section 7.
-            c = frame[n] << spec.threshold_frac_bits
+            c = frame[n] << f_t
             det = c > t if spec.compare == ">" else c >= t
             if spec.edge == "skip" and not v:
                 t, det = 0, False
@@ -168,7 +160,8 @@ def make_spec(kind="ca", r=2, g=1, alpha=4.0, edge="zero-pad", compare=">", rank
 
 
 @st.composite
-def specs(draw, narrow_threshold=True):
+def specs_and_width(draw, narrow_threshold=True):
+    """A random spec and the threshold width it was written with (None: the default)."""
     kind = draw(st.sampled_from(KINDS))
     r, g = draw(st.integers(1, 5)), draw(st.integers(0, 3))
     det = {"kind": kind, "ref_cells_per_side": r, "guard_cells_per_side": g,
@@ -198,7 +191,12 @@ def specs(draw, narrow_threshold=True):
     if narrow_threshold and draw(st.booleans()):
         fixed["threshold_bits"] = draw(st.integers(1, spec.threshold_bits))
         spec = spec_from_dict({"detector": det, "fixed": fixed})
-    return spec
+    return spec, fixed.get("threshold_bits")
+
+
+def specs(narrow_threshold=True):
+    """Random specs (every kind, edge policy, rounding, overflow, CSD, truncation, narrow thresholds)."""
+    return specs_and_width(narrow_threshold).map(lambda pair: pair[0])
 
 
 @st.composite
@@ -223,16 +221,16 @@ def streams(draw, spec, max_frames=4):
 @given(data=st.data())
 def test_words_match_a_direct_reading_of_the_spec(data):
     """Every kind, edge policy, rounding, overflow, CSD and truncated constant; frames from W up."""
-    spec = data.draw(specs())
+    spec, w_t = data.draw(specs_and_width())
     x, last = data.draw(streams(spec))
-    assert_words(run_fast(spec, x, last), direct_words(spec, x, last))
+    assert_words(run_fast(spec, x, last), direct_words(spec, x, last, w_t))
 
 
 @HYP
 @given(data=st.data())
 def test_chunk_splits_do_not_change_the_words(data):
     """Any split points (inside a frame, on a frame end, empty chunks): same words as one call."""
-    spec = data.draw(specs())
+    spec, w_t = data.draw(specs_and_width())
     x, last = data.draw(streams(spec))
     cuts = sorted(data.draw(st.lists(st.integers(0, x.size), max_size=8)))
     pipe = FastPipeline(spec)
@@ -241,7 +239,7 @@ def test_chunk_splits_do_not_change_the_words(data):
         parts.append(pipe.push(x[prev:c], last[prev:c]))
         prev = c
     parts.append(pipe.finish())
-    assert_words(PipelineOutput.concat(parts), direct_words(spec, x, last))
+    assert_words(PipelineOutput.concat(parts), direct_words(spec, x, last, w_t))
 
 
 # --------------------------------------------------------------------------
@@ -480,8 +478,9 @@ def test_uniform_frames_use_the_row_layout_and_match():
     frames = [rng.integers(0, 2**16, 4096) for _ in range(40)]
     x, last = stream(*frames)
     whole = run_fast(spec, x, last)
-    # Reference: each frame's interior from the written CA formula (lag + lead sums, A, half-up, d).
-    a, d = spec.alpha_int, spec.drop_bits
+    # Reference: each frame's interior from the written CA formula (lag + lead sums, A, half-up, d):
+    # D = 2R = 32, F_A = 12 (default), target = 5 * 4096 / 32 = 640 exactly, so A = 640; d = 12 - 0.
+    a, d = 640, 12
     f = frames[17].astype(np.int64)
     n = 1000
     s = int(f[n - 18 : n - 2].sum() + f[n + 3 : n + 19].sum())
@@ -524,14 +523,18 @@ def test_sample_dtypes():
 # --------------------------------------------------------------------------
 # Fixed point against the float golden model.
 # The fixed threshold differs from alpha * S / D by the constant's quantisation
-# (S |A - A_exact| / 2^F_P) plus the product's rounding (at most one threshold
-# LSB for floor and truncation of each partial product, half an LSB for
-# rounding to nearest): standard rounding-error analysis, e.g. A. V. Oppenheim,
-# R. W. Schafer, "Discrete-Time Signal Processing", 3rd ed., 2010, sec. 6.7
-# (coefficient quantisation) and sec. 6.6 (the error intervals of rounding and
-# truncation; section numbers from memory); N. J. Higham, "Accuracy and
-# Stability of Numerical Algorithms", 2nd ed., 2002, ch. 2 (rounding error
-# model). spec.threshold_error_bound(S) states that bound.
+# (S |A - A_exact| / 2^F_P, A_exact = alpha 2^F_P / D) plus the product's
+# rounding (r = at most one threshold LSB for floor, one per partial product
+# when each is truncated, half an LSB for rounding to nearest): standard
+# rounding-error analysis, e.g. A. V. Oppenheim, R. W. Schafer, "Discrete-Time
+# Signal Processing", 3rd ed., 2010, sec. 6.7 (coefficient quantisation) and
+# sec. 6.6 (the error intervals of rounding and truncation; section numbers
+# from memory); N. J. Higham, "Accuracy and Stability of Numerical
+# Algorithms", 2nd ed., 2002, ch. 2 (rounding error model). The bound is
+# computed here (test_block_spec.threshold_error_bound, with D, s and A derived
+# from the spec's input fields), plus a float allowance for the float64 model
+# (test_block_spec.float_allowance). spec.threshold_error_bound(S) must state
+# the same bound plus its documented allowance of 1e-9 (1 + S).
 # --------------------------------------------------------------------------
 
 
@@ -543,11 +546,16 @@ def check_against_float(spec, frame):
     ref = cfar_1d(frame.astype(float), spec.kind, spec.ref_per_side, spec.guard_per_side, spec.alpha,
                   rank=spec.rank, compare=spec.compare, edge=spec.edge)
     decided = ~np.isnan(ref.threshold)
-    s = ref.estimate[decided] * spec.mean_divisor  # the integer statistic, from the float model
-    bound = spec.threshold_error_bound(s)
+    # The integer statistic from the float model's estimate (exact sums of integers; D from section 4).
+    s = np.rint(ref.estimate[decided] * divisor(spec.kind, spec.ref_per_side))
+    core = threshold_error_bound(spec, s)
+    bound = core + float_allowance(spec, s)
     t_fixed = out.threshold[decided] / 2.0**spec.threshold_frac_bits
     err = np.abs(t_fixed - ref.threshold[decided])
     assert (err <= bound).all(), f"worst error {err.max()} > bound at S = {s[np.argmax(err - bound)]}"
+    # The library states the same bound (its docstring: plus 1e-9 (1 + S) for double precision).
+    stated = spec.threshold_error_bound(s)
+    assert np.all(np.abs(stated - (core + 1e-9 * (1.0 + s))) <= float_allowance(spec, s))
     differ = out.det != ref.detections
     assert not differ[~decided].any()
     close = np.abs(frame[decided] - ref.threshold[decided]) <= bound
