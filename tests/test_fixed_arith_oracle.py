@@ -65,12 +65,14 @@ def test_constant_rounds_like_fxpmath_nearest_posinf(alpha, f_a, divisor):
     assert quantise_constant(target, 0) == fxp_raw([alpha / divisor], f_a, "nearest_posinf")[0]
 
 
-@pytest.mark.parametrize("kind, r, alpha, f_a", [("ca", 8, 4.7, 10), ("go", 3, 13.0, 7), ("so", 5, 2.25, 3),
-                                                 ("os", 6, 9.99, 12), ("ca", 4, 0.375, 4)])
-def test_spec_constant_matches_fxpmath(kind, r, alpha, f_a):
+# The divisor D of docs/bit-true.md section 4, written per case: 2R for ca, R for go and so, 1 for os.
+@pytest.mark.parametrize("kind, r, alpha, f_a, divisor", [("ca", 8, 4.7, 10, 16), ("go", 3, 13.0, 7, 3),
+                                                          ("so", 5, 2.25, 3, 5), ("os", 6, 9.99, 12, 1),
+                                                          ("ca", 4, 0.375, 4, 8)])
+def test_spec_constant_matches_fxpmath(kind, r, alpha, f_a, divisor):
     det = {"kind": kind, "ref_cells_per_side": r, "alpha": alpha, "rank": r if kind == "os" else None}
     spec = spec_from_dict({"detector": det, "fixed": {"alpha_frac_bits": f_a}})
-    assert spec.alpha_int == fxp_raw([alpha / spec.mean_divisor], f_a, "nearest_posinf")[0]
+    assert spec.alpha_int == fxp_raw([alpha / divisor], f_a, "nearest_posinf")[0]
 
 
 # ---- rounding of products (section 5) ----
@@ -163,15 +165,22 @@ def test_naf_is_a_minimal_weight_signed_digit_form(a):
 
 # ---- end to end: pipeline thresholds against fxpmath ----
 
-@pytest.mark.parametrize("kind, edge, fixed", [
-    ("ca", "zero-pad", {"rounding": "half-up"}),
-    ("ca", "one-sided", {"rounding": "half-even", "threshold_frac_bits": 2}),
-    ("go", "circular", {"rounding": "floor", "threshold_frac_bits": 1, "threshold_bits": 12, "overflow": "saturate"}),
-    ("so", "skip", {"rounding": "half-even", "alpha_csd_digits": 2}),
-    ("os", "one-sided", {"rounding": "half-up", "threshold_bits": 9, "overflow": "wrap"}),
-    ("ca", "circular", {"rounding": "floor", "mean_by_shift": True, "threshold_bits": 10, "overflow": "wrap"}),
+# Formats written from the definitions (docs/bit-true.md sections 4 to 6), R = 8, alpha = 6.1, F_A = 9:
+# D = 2R = 16 (ca), R = 8 (go, so), 1 (os); s = log2 D = 4 only with mean_by_shift (last case);
+# F_P = F_A + s; F_T and W_T as the case gives them (W_T None: the default, which holds the largest
+# threshold, so nothing overflows and fxpmath needs no overflow handling; its width is then checked
+# as the bit length of the largest threshold, at full-scale input S_max = D (2^10 - 1)).
+@pytest.mark.parametrize("kind, edge, fixed, divisor, shift, f_t, w_t", [
+    ("ca", "zero-pad", {"rounding": "half-up"}, 16, 0, 0, None),
+    ("ca", "one-sided", {"rounding": "half-even", "threshold_frac_bits": 2}, 16, 0, 2, None),
+    ("go", "circular", {"rounding": "floor", "threshold_frac_bits": 1, "threshold_bits": 12, "overflow": "saturate"},
+     8, 0, 1, 12),
+    ("so", "skip", {"rounding": "half-even", "alpha_csd_digits": 2}, 8, 0, 0, None),
+    ("os", "one-sided", {"rounding": "half-up", "threshold_bits": 9, "overflow": "wrap"}, 1, 0, 0, 9),
+    ("ca", "circular", {"rounding": "floor", "mean_by_shift": True, "threshold_bits": 10, "overflow": "wrap"},
+     16, 4, 0, 10),
 ])
-def test_pipeline_thresholds_match_fxpmath(kind, edge, fixed):
+def test_pipeline_thresholds_match_fxpmath(kind, edge, fixed, divisor, shift, f_t, w_t):
     """T = the product S * A / 2^F_P quantised to F_T fraction bits and W_T bits by fxpmath, with S from the float model."""
     det = {"kind": kind, "ref_cells_per_side": 8, "guard_cells_per_side": 1, "alpha": 6.1, "edge": edge,
            "rank": 11 if kind == "os" else None}
@@ -179,15 +188,30 @@ def test_pipeline_thresholds_match_fxpmath(kind, edge, fixed):
         spec = spec_from_dict({"detector": det, "fixed": {"input_bits": 10, "alpha_frac_bits": 9, **fixed}})
     except SpecError as exc:  # pragma: no cover - the table above holds valid specs
         pytest.fail(str(exc))
+    f_p = 9 + shift
+    rounding = FXP_ROUNDING[fixed["rounding"]]
+    # A (section 4): fxpmath's nearest_posinf of alpha 2^s / D at F_A = 9 bits; with 2 CSD digits the
+    # nearest value of BRUTE[2] (every sum of at most 2 signed powers of two; target 6.1 * 512 / 8 = 390.4).
+    target = 6.1 * 2.0**f_p / divisor
+    if fixed.get("alpha_csd_digits"):
+        err = np.abs(BRUTE[2] - target)
+        a = int(BRUTE[2][err == err.min()].min())
+    else:
+        a = int(fxp_raw([6.1 * 2.0**shift / divisor], 9, "nearest_posinf")[0])
+    assert spec.alpha_int == a
     rng = np.random.default_rng(17)
     frame = np.minimum(rng.exponential(150.0, 300), 1023).astype(np.int64)
     out = run_fast(spec, frame, np.r_[np.zeros(299, dtype=bool), True])
     ref = cfar_1d(frame.astype(float), kind, 8, 1, 6.1, rank=det["rank"], edge=edge)
     decided = ~np.isnan(ref.estimate)
-    s = np.rint(ref.estimate[decided] * spec.mean_divisor)  # integer statistic (exact sums of integers)
-    value = s * spec.alpha_int / 2.0**spec.product_frac_bits
-    want = fxp_raw(value, spec.threshold_frac_bits, FXP_ROUNDING[spec.rounding], n_word=spec.threshold_bits,
-                   overflow=spec.overflow)
+    s = np.rint(ref.estimate[decided] * divisor)  # integer statistic (exact sums of integers)
+    value = s * a / 2.0**f_p
+    if w_t is None:
+        want = fxp_raw(value, f_t, rounding)
+        top = fxp_raw([divisor * 1023 * a / 2.0**f_p], f_t, rounding)[0]
+        assert spec.threshold_bits == int(top).bit_length()
+    else:
+        want = fxp_raw(value, f_t, rounding, n_word=w_t, overflow=fixed["overflow"])
     assert out.threshold[decided].tolist() == want.tolist()
     if edge == "skip":
         assert not out.threshold[~decided].any()
