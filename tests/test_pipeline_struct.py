@@ -22,7 +22,7 @@ from hypothesis import strategies as st
 from refmodel.block_spec import spec_from_dict
 from refmodel.errors import SpecError
 from refmodel.pipeline_struct import StructuralPipeline, check_stream, run_structural, simulate
-from refmodel.word_format import pack_input, pack_output
+from refmodel.word_format import pack_input
 from test_pipeline_fast import HYP, LONG, specs, stream, streams
 
 FEW = settings(HYP, max_examples=600 if LONG else 60)
@@ -180,13 +180,43 @@ def test_words_wider_than_64_bits_are_refused():
         spec_from_dict({"detector": {"kind": "ca", "ref_cells_per_side": 4, "alpha": 5.0, "edge": "zero-pad"},
                         "fixed": {"input_bits": 32, "alpha_frac_bits": 20, "threshold_frac_bits": 8}})
 
+
 def test_output_words_use_the_documented_bit_positions():
+    """Section 8, LSB first: CUT [W_in-1:0], T [W_in+W_T-1:W_in], det at W_in+W_T, v at W_in+W_T+1,
+    last at W_in+W_T+2; the words of test_hand_computed_words built by hand from those positions.
+
+    Spec: CA, R = 2, G = 1, W_in = 8, alpha = 2, F_A = 12, zero-pad: A = 2048, d = 12, and the default
+    W_T = bitlen(T0 at S_max = 4 * 255 = 1020) = bitlen((1020 * 2048 + 2048) >> 12) = bitlen(510) = 9.
+    So T sits at bits 8..16, det at 17, v at 18, last at 19: a 20-bit word.
+    """
+    spec = spec_from_dict({"detector": {"kind": "ca", "ref_cells_per_side": 2, "guard_cells_per_side": 1,
+                                        "alpha": 2.0, "edge": "zero-pad"}, "fixed": {"input_bits": 8}})
+    x = [1, 2, 3, 4, 50, 6, 7, 8]
+    t = [4, 27, 29, 8, 10, 8, 27, 28]  # test_hand_computed_words, zero-pad
+    det = [0, 0, 0, 0, 1, 0, 0, 0]
+    v = [0, 0, 0, 1, 1, 0, 0, 0]
+    last = [0] * 7 + [1]
+    want = [x[n] | t[n] << 8 | det[n] << 17 | v[n] << 18 | last[n] << 19 for n in range(8)]
+    # e.g. n = 4: 50 + 10 * 2^8 + 2^17 + 2^18 = 50 + 2560 + 131072 + 262144 = 395826
+    assert want[4] == 395826
+    run = simulate(spec, np.array(x), np.array(last, dtype=bool))
+    assert run.words.tolist() == want
+    assert spec.output_bits == 20
+
+
+def test_output_words_of_a_random_frame_pack_the_fields_at_the_documented_positions():
+    """The same layout on a 16-sample random frame: W_in = 8 and, for CA R = 3, alpha = 3, F_A = 12,
+    A = 3 * 4096 / 6 = 2048, d = 12, S_max = 6 * 255 = 1530, T0 max = (1530 * 2048 + 2048) >> 12 = 765,
+    W_T = bitlen(765) = 10; so T at bits 8..17, det 18, v 19, last 20. The fields come from the
+    structural model (checked against hand values and the plain reading elsewhere)."""
     spec = _spec()
     x, last = _frames(16)
     run = simulate(spec, x, last)
     out = run_structural(spec, x, last)
-    assert np.array_equal(run.words, pack_output(spec, out))
-    assert int(run.words.max()) < 1 << spec.output_bits
+    want = [int(c) | int(t) << 8 | int(d) << 18 | int(v) << 19 | int(e) << 20
+            for c, t, d, v, e in zip(out.cut, out.threshold, out.det, out.valid, out.last)]
+    assert run.words.tolist() == want
+    assert spec.output_bits == 21 and int(out.threshold.max()) < 1 << 10
 
 
 # --------------------------------------------------------------------------
