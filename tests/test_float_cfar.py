@@ -43,7 +43,20 @@ HYP = settings(
 # --------------------------------------------------------------------------
 # Per-cell reference: a direct transcription of the written definition
 # (docs/float-model.md, sections "Detectors" and "Edge policies"), one cell at
-# a time over explicit index lists. Deliberately slow and plain.
+# a time over explicit index lists. Deliberately slow and plain. The
+# estimates are those of the published detectors: CA, the mean of the 2R
+# reference cells (H. M. Finn and R. S. Johnson, "Adaptive detection mode
+# with threshold control as a function of spatially sampled clutter-level
+# estimates", RCA Review 29(3), 1968; M. A. Richards, Fundamentals of Radar
+# Signal Processing, 2005, sec. 7.3); GO, the greater of the two side means
+# (V. G. Hansen and J. H. Sawyers, "Detectability loss due to 'greatest of'
+# selection in a cell-averaging CFAR", IEEE Trans. AES-16(1), 1980); SO, the
+# smaller (P. P. Gandhi and S. A. Kassam, "Analysis of CFAR processors in
+# nonhomogeneous background", IEEE Trans. AES-24(4), 1988); OS, the k-th
+# smallest reference cell (H. Rohling, "Radar CFAR thresholding in clutter
+# and multiple target situations", IEEE Trans. AES-19(4), 1983). The edge
+# policies are this project's (docs/float-model.md section 3: common
+# practice, no source).
 # --------------------------------------------------------------------------
 
 
@@ -289,17 +302,29 @@ N_MC = 2 * R_MC
 
 
 def test_pfa_reference_functions_agree_with_closed_forms():
-    # Checks of the test's own references. GO+SO: since max + min of the two
-    # side sums equals their total, E[exp(-a max/R)] and E[exp(-a min/R)] do
-    # not add up to anything simple, but for R = 1 both are elementary
-    # (two exponentials): Pfa_SO = 2/(2 + a), Pfa_GO = 2/(1 + a) - 2/(2 + a)
-    # (direct integration, from memory; verified here against quad).
+    # Checks of the test's own references. Tolerance rel=1e-9: ten times the
+    # relative accuracy requested from scipy.integrate.quad (epsrel=1e-10 in
+    # pfa_go_so; scipy's default for stats.gamma.expect is tighter still).
+    #
+    # GO + SO: {max, min} of the two side sums is {Y1, Y2}, so
+    # exp(-a max/R) + exp(-a min/R) = exp(-a Y1/R) + exp(-a Y2/R) and, with
+    # Y1, Y2 i.i.d. Gamma(R, 1), E[exp(-a Y/R)] = (1 + a/R)^-R (Laplace
+    # transform of the Gamma law), the two Pfa add up to 2 (1 + a/R)^-R
+    # (Gandhi & Kassam 1988, homogeneous case; Hansen & Sawyers 1980).
     a = 3.0
+    for R in (1, 2, R_MC):
+        total = pfa_go_so(a, R, "go") + pfa_go_so(a, R, "so")
+        assert total == pytest.approx(2.0 * (1.0 + a / R) ** (-R), rel=1e-9)
+    # For R = 1 each is elementary (two exponentials): Pfa_SO = 2/(2 + a),
+    # Pfa_GO = 2/(1 + a) - 2/(2 + a) (direct integration, from memory;
+    # verified here against quad).
     assert pfa_go_so(a, 1, "so") == pytest.approx(2.0 / (2.0 + a), rel=1e-9)
     assert pfa_go_so(a, 1, "go") == pytest.approx(2.0 / (1.0 + a) - 2.0 / (2.0 + a), rel=1e-9)
     # Rohling with k = N is the pure product; CA closed form vs scipy Laplace
     # transform of Gamma(N)/N.
     assert pfa_ca(a, 10, 10) == pytest.approx(stats.gamma(10).expect(lambda s: np.exp(-a * s / 10)), rel=1e-9)
+    # OS with N = k = 1: Rohling's product is 1/(1 + a); both sides are one
+    # rational expression, so pytest.approx's default rel=1e-6 is ample.
     assert pfa_os(a, 1, 1) == pytest.approx(1.0 / (1.0 + a))
 
 
