@@ -20,7 +20,7 @@ from hypothesis import strategies as st
 from scipy import integrate, optimize, stats
 
 from refmodel.errors import SpecError
-from refmodel.float_cfar2d import cfar_2d
+from refmodel.float_cfar2d import band_offsets, cfar_2d
 
 KINDS = ("ca", "go", "so", "os")
 RANGE_EDGES = ("skip", "zero-pad", "one-sided", "circular")
@@ -40,6 +40,15 @@ HYP = settings(
 # --------------------------------------------------------------------------
 # Per-cell reference: a direct transcription of the written definition, one
 # cell at a time over explicit offset lists. Deliberately slow and plain.
+# Written from docs/float-model.md section 4 (the 2D band, its halves and the
+# 2D edge rules are this project's definitions) and the published 1D
+# detectors it extends: CA, the mean of the reference cells (H. M. Finn and
+# R. S. Johnson, RCA Review 29(3), 1968; M. A. Richards, Fundamentals of Radar
+# Signal Processing, 2005, sec. 7.3); GO and SO, the greater and the smaller
+# of the two half means (V. G. Hansen and J. H. Sawyers, IEEE Trans.
+# AES-16(1), 1980; P. P. Gandhi and S. A. Kassam, IEEE Trans. AES-24(4),
+# 1988); OS, the k-th smallest reference cell (H. Rohling, IEEE Trans.
+# AES-19(4), 1983).
 # --------------------------------------------------------------------------
 
 
@@ -154,6 +163,9 @@ def _check_2d_against_reference(m, kind, geom, rank, range_edge, doppler_edge, a
                     np.testing.assert_array_equal(got_t[i], t)
                     np.testing.assert_array_equal(got_d[i], d)
                 else:
+                    # Real-valued samples: window sums from a summed-area table carry a rounding
+                    # error of order eps * (map total) (docs/float-model.md section 5); 256 eps
+                    # leaves room for the four-term differences and the division by N.
                     tol = 256 * np.finfo(float).eps * (float(mm.sum()) + 1.0)
                     np.testing.assert_allclose(got_e[i], e, rtol=0, atol=tol, equal_nan=True)
                     clear = ~np.isnan(t) & (np.abs(mm - t) > alpha * tol + tol)
@@ -310,12 +322,20 @@ def _alpha_for(pfa_of_alpha, target=PFA_TARGET):
 
 
 def test_band_counts_of_the_mc_geometry():
-    # Counted by hand from the definition: window 3 x 7 = 21, guard 1 x 3 = 3,
-    # band 18; lagging half: 3 rows x 3 columns minus the 1 x 1 guard cell = 8;
-    # the 2 cells straight above and below the CUT (range offset 0) are in
-    # neither half: 8 + 8 + 2 = 18.
-    assert (N_BAND, N_HALF) == (18, 8)
-    assert 2 * N_HALF + 2 * RD == N_BAND
+    # Counted by hand from the definition (docs/float-model.md section 4), Rd = 1, Rr = 2, Gd = 0,
+    # Gr = 1: the window is Doppler offsets -1..1 by range offsets -3..3, 3 x 7 = 21 cells; the guard
+    # rectangle is Doppler 0 by range -1..1, 3 cells (the CUT among them); the band holds 18.
+    # Lagging half (range offset < 0): 3 rows x 3 columns minus the guard cell (0, -1) = 8, the
+    # leading half likewise 8; the 2 cells (-1, 0) and (1, 0) straight above and below the CUT are
+    # in neither half: 8 + 8 + 2 = 18.
+    d_off, r_off = band_offsets((RD, RR), (GD, GR))
+    cells = set(zip(d_off.tolist(), r_off.tolist()))
+    assert len(d_off) == len(cells) == 18
+    window = {(d, r) for d in (-1, 0, 1) for r in range(-3, 4)}
+    assert cells == window - {(0, -1), (0, 0), (0, 1)}
+    assert int((r_off < 0).sum()) == 8 and int((r_off > 0).sum()) == 8
+    assert {c for c in cells if c[1] == 0} == {(-1, 0), (1, 0)}
+    assert (N_BAND, N_HALF) == (18, 8)  # the constants the Monte Carlo below uses
 
 
 def test_monte_carlo_pfa_ca_2d():
