@@ -29,15 +29,12 @@ from __future__ import annotations
 import csv
 import json
 import math
-import os
-import shutil
-import tempfile
 from pathlib import Path
 
 import numpy as np
 
 from . import threshold_design as td
-from .errors import require
+from .output_folder import staged_folder
 from .quant_study import AXES, StudyResult
 
 __all__ = ["reference_row", "write_report"]
@@ -335,12 +332,7 @@ def write_report(result: StudyResult, out_dir: str | Path, force: bool = False) 
         For a non-empty target without ``force``, or a target that is a file.
     """
     target = Path(out_dir)
-    require(not target.exists() or target.is_dir(), "-o", f"{str(target)!r} is a file", "a folder path")
-    occupied = target.exists() and any(target.iterdir())
-    require(not occupied or force, "-o", f"{str(target)!r} is not empty", "an empty or new folder, or --force")
-    target.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent))
-    try:
+    with staged_folder(target, force, field="-o") as tmp:
         ref = reference_row(result)
         _write_csv(result, tmp / "points.csv")
         _plot_loss(result, tmp / "loss_vs_width.png", ref)
@@ -351,15 +343,4 @@ def write_report(result: StudyResult, out_dir: str | Path, force: bool = False) 
                 "reference_point": ref["index"], "float_snr_db": {str(k): v for k, v in result.float_snr_db.items()},
                 "spec": result.spec.to_dict()}
         (tmp / "study.json").write_text(json.dumps(meta, indent=2, default=str), encoding="utf-8")
-        os.chmod(tmp, 0o755)
-        if target.exists():
-            old = target.with_name(f".{target.name}.old.{os.getpid()}")
-            target.rename(old)
-            tmp.rename(target)
-            shutil.rmtree(old, ignore_errors=True)
-        else:
-            tmp.rename(target)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
     return target

@@ -25,9 +25,6 @@ renamed into place only when complete; any failure (an exception or
 from __future__ import annotations
 
 import math
-import os
-import shutil
-import tempfile
 from dataclasses import asdict, dataclass
 from pathlib import Path
 from typing import Any, Iterator, Mapping
@@ -35,7 +32,8 @@ from typing import Any, Iterator, Mapping
 import numpy as np
 
 from refmodel.block_spec import BlockSpec
-from refmodel.errors import SpecError, require
+from refmodel.errors import require
+from refmodel.output_folder import staged_folder
 from refmodel.pipeline_fast import FastPipeline
 from refmodel.word_format import PipelineOutput, pack_input, pack_output
 
@@ -344,30 +342,6 @@ def _generate(spec: BlockSpec, settings: VectorSettings, folder: Path) -> dict:
     return manifest
 
 
-def _prepare_target(out: Path, force: bool) -> None:
-    if out.exists() or out.is_symlink():
-        require(out.is_dir() and not out.is_symlink(), "--output", f"{str(out)!r} exists and is not a folder",
-                "a new or empty folder, or an existing set folder with --force")
-        if any(out.iterdir()):
-            require(force, "--output", f"{str(out)!r} exists and is not empty",
-                    "a new or empty folder, or --force to replace it")
-
-
-def _move_into_place(tmp: Path, out: Path) -> None:
-    if out.exists() and any(out.iterdir()):
-        old = Path(tempfile.mkdtemp(prefix=f".{out.name}.old-", dir=out.parent))
-        os.replace(out, old / "set")
-        try:
-            os.replace(tmp, out)
-        except BaseException:
-            os.replace(old / "set", out)
-            shutil.rmtree(old, ignore_errors=True)
-            raise
-        shutil.rmtree(old, ignore_errors=True)
-    else:
-        os.replace(tmp, out)  # an empty existing folder is replaced by the rename itself
-
-
 def write_vector_set(spec: BlockSpec, output: str | Path, *, seed: int | None = None, formats=None,
                      force: bool = False) -> dict:
     """Generate a vector set into the folder ``output``.
@@ -399,22 +373,6 @@ def write_vector_set(spec: BlockSpec, output: str | Path, *, seed: int | None = 
         When writing fails (nothing is left behind).
     """
     settings = vector_settings(spec, seed=seed, formats=formats)
-    out = Path(output).absolute()
-    _prepare_target(out, force)
-    try:
-        out.parent.mkdir(parents=True, exist_ok=True)
-        tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.partial-", dir=out.parent))
-    except OSError as exc:
-        raise SpecError("--output", f"cannot create a folder in {str(out.parent)!r} ({exc.strerror})",
-                        "a path whose parent is, or can be made, a writable folder") from None
-    try:
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o777 & ~umask)  # mkdtemp makes it private; a set folder is an ordinary folder
+    with staged_folder(output, force) as tmp:
         manifest = _generate(spec, settings, tmp)
-        _prepare_target(out, force)  # it may have appeared meanwhile
-        _move_into_place(tmp, out)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
     return manifest
