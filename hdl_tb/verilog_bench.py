@@ -7,6 +7,12 @@ prints one summary line (``PASS n`` or ``FAIL n first=...``). This module
 builds it for a block spec (one compiled image per parameter set, cached),
 runs it with ``vvp`` and returns a :class:`BenchResult`.
 
+The output sink has two modes (:data:`SINK_MODES`): ``"independent"`` draws
+``m_axis_tready`` every cycle without looking at ``m_axis_tvalid``;
+``"waits-for-valid"`` raises it only for a word it has seen waiting, as ARM
+IHI 0051A 2.2.1 allows a sink to do, so that a core whose TVALID waits for
+TREADY deadlocks and the bench's watchdog fails the run.
+
 Typical use::
 
     from hdl_tb.verilog_bench import run_bench
@@ -35,6 +41,8 @@ from .core_params import BENCH_SOURCE, BENCH_TOP, CORE_SOURCES, core_parameters
 STIMULUS_FILE = "stimulus.hex"
 EXPECTED_FILE = "expected.hex"
 RECEIVED_FILE = "received.hex"
+#: Output sink modes: TREADY drawn every cycle regardless of TVALID, or raised only after TVALID was seen high.
+SINK_MODES = ("independent", "waits-for-valid")
 
 _SUMMARY = re.compile(r"^(PASS|FAIL) (\d+)(?: first=(.*))?$", re.MULTILINE)
 _PARAM_ERROR = re.compile(r"(\w+)_PARAMETER_ERROR__(\w+)")
@@ -201,7 +209,8 @@ def run_bench(spec: BlockSpec | Mapping[str, int], folder: str | Path, *,
               seed: int = 1, dump: str | Path | None = None, generation: str = "2005",
               build_root: str | Path | None = None, timeout_cycles: int = 0,
               core_sources: Sequence[str | Path] | None = None,
-              bench_source: str | Path | None = None) -> BenchResult:
+              bench_source: str | Path | None = None, sink: str = "independent",
+              max_reports: int = 10, watchdog_cycles: int = 0) -> BenchResult:
     """Run the pure-Verilog testbench on a folder of stimulus and expected hex files.
 
     Parameters
@@ -234,6 +243,18 @@ def run_bench(spec: BlockSpec | Mapping[str, int], folder: str | Path, *,
         Cycles before the bench gives up; 0 = its automatic bound.
     core_sources, bench_source : optional
         See :func:`compile_bench`.
+    sink : {"independent", "waits-for-valid"}, optional
+        ``"independent"``: ``m_axis_tready`` is drawn every cycle
+        (``stall_percent`` low) without looking at ``m_axis_tvalid``.
+        ``"waits-for-valid"``: it is raised, after the same stall draw, only
+        for a word seen waiting, and falls after each transfer; the drain and
+        latency checks are then off (the pipeline waits for the sink), and a
+        run in which no word is offered and nothing moves for
+        ``watchdog_cycles`` fails as a deadlock.
+    max_reports : int, optional
+        Error lines the bench prints in full; every error is counted.
+    watchdog_cycles : int, optional
+        Deadlock bound of the waiting sink; 0 = the bench's automatic bound.
 
     Returns
     -------
@@ -243,7 +264,8 @@ def run_bench(spec: BlockSpec | Mapping[str, int], folder: str | Path, *,
     ------
     SpecError
         Missing simulator, unsupported spec (see ``core_parameters``), a
-        missing hex file, or percentages out of range.
+        missing hex file, percentages out of range, an unknown sink mode, a
+        negative report count or watchdog bound.
     BenchCompileError
         When the bench does not compile.
     RuntimeError
@@ -253,6 +275,11 @@ def run_bench(spec: BlockSpec | Mapping[str, int], folder: str | Path, *,
     for name, pct in (("gap_percent", gap_percent), ("stall_percent", stall_percent)):
         if not (isinstance(pct, int) and 0 <= pct <= 95):
             raise SpecError(name, f"got {pct!r}", "an integer 0..95")
+    if sink not in SINK_MODES:
+        raise SpecError("sink", f"got {sink!r}", " or ".join(f'"{m}"' for m in SINK_MODES))
+    for name, value in (("max_reports", max_reports), ("watchdog_cycles", watchdog_cycles)):
+        if not (isinstance(value, int) and not isinstance(value, bool) and 0 <= value < 2**31):
+            raise SpecError(name, f"got {value!r}", "an integer 0..2147483647")
     folder = Path(folder)
     stim_path, exp_path = folder / stimulus, folder / expected
     for what, path in (("stimulus", stim_path), ("expected", exp_path)):
@@ -271,7 +298,9 @@ def run_bench(spec: BlockSpec | Mapping[str, int], folder: str | Path, *,
     args = [vvp, "-n", str(image),
             f"+STIM_FILE={stim_path.resolve()}", f"+EXPECT_FILE={exp_path.resolve()}",
             f"+OUT_FILE={received_path.resolve()}", f"+GAP_PERCENT={gap_percent}",
-            f"+STALL_PERCENT={stall_percent}", f"+SEED={int(seed)}", f"+TIMEOUT_CYCLES={int(timeout_cycles)}"]
+            f"+STALL_PERCENT={stall_percent}", f"+SEED={int(seed)}", f"+TIMEOUT_CYCLES={int(timeout_cycles)}",
+            f"+SINK_WAITS_FOR_VALID={int(sink == 'waits-for-valid')}", f"+MAX_REPORTS={max_reports}",
+            f"+WATCHDOG_CYCLES={watchdog_cycles}"]
     if n_stim is not None and n_stim == n_exp:
         args.append(f"+N_WORDS={n_stim}")
     if dump is not None:

@@ -11,7 +11,9 @@ files (IEEE Std 1364-2005, section 17.2.9) and runs
 The bench itself also checks the AXI4-Stream output handshake (ARM IHI 0051A,
 section 2.2.1: once TVALID is high it stays high with TDATA stable until the
 transfer), the drain of ``docs/bit-true.md`` section 9 and, at full rate, the
-latency ``R + G + pipeline_stages``.
+latency ``R + G + pipeline_stages``. Some configurations run with a sink that
+waits for TVALID before raising TREADY (allowed to a sink by ARM IHI 0051A,
+section 2.2.1), under which a core whose TVALID waits for TREADY deadlocks.
 
 Long runs (more configurations, longer streams) need ``CFARVEC_LONG=1``.
 """
@@ -140,12 +142,12 @@ CONFIGS = {
         dict(kind="ca", r=7, g=1, alpha=12.5, edge="zero-pad", stages=3, input_bits=32, rounding="half-even",
              alpha_frac_bits=10, threshold_frac_bits=1, threshold_bits=29), dict(stall_percent=20, generation="2012"),
         1200),
-    "go-r9-24bit-halfeven-fracbits-zeropad": (
+    "go-r9-24bit-halfeven-fracbits-zeropad-waiting-sink": (
         dict(kind="go", r=9, g=1, alpha=5.5, edge="zero-pad", stages=2, input_bits=24, rounding="half-even",
-             alpha_frac_bits=10, threshold_frac_bits=2), dict(gap_percent=10), 1200),
-    "so-r12-8bit-floor-skip-16stages-stalls": (
+             alpha_frac_bits=10, threshold_frac_bits=2), dict(gap_percent=10, sink="waits-for-valid"), 1200),
+    "so-r12-8bit-floor-skip-16stages-stalls-waiting-sink": (
         dict(kind="so", r=12, g=2, alpha=3.0, stages=16, input_bits=8, rounding="floor"),
-        dict(stall_percent=60, seed=13), 1500),
+        dict(stall_percent=60, seed=13, sink="waits-for-valid"), 1500),
     "ca-r2-g1-16bit-halfup-wrap-onesided-ge-g2012": (
         dict(kind="ca", r=2, g=1, alpha=4.4, edge="one-sided", compare=">=", input_bits=16, rounding="half-up",
              overflow="wrap", threshold_bits=15), dict(generation="2012"), 1200),
@@ -220,6 +222,44 @@ def test_bench_reports_a_wrong_word(tmp_path):
     assert "FAIL 1 first=" in result.log
 
 
+def _positions(last) -> list[tuple[int, int]]:
+    """(frame, sample index within the frame) of every word, from the last markers (docs/bit-true.md 1)."""
+    out, frame, sample = [], 0, 0
+    for flag in last:
+        out.append((frame, sample))
+        frame, sample = (frame + 1, 0) if flag else (frame, sample + 1)
+    return out
+
+
+def test_bench_counts_every_wrong_word_and_prints_the_first_few(tmp_path):
+    """Every word wrong: all are counted, MAX_REPORTS lines are printed, each names its frame and sample."""
+    spec = _spec("go", 3, 1, alpha=4.0, input_bits=8)
+    _, model = _model()
+    samples, last = _stimulus(spec, np.random.default_rng(21), 240)
+    words = _pack_words(spec, model(spec, samples, last))
+    t_lsb, _ = output_field_offsets(spec)["threshold"]
+    _write_set(tmp_path, spec, samples, last, [w ^ (1 << t_lsb) for w in words])
+    n = len(words)
+    where = _positions(last)
+    assert len({f for f, _ in where}) >= 4
+
+    result = run_bench(spec, tmp_path, gap_percent=20, stall_percent=30, build_root=tmp_path / "b")
+    assert not result.passed and result.n_mismatches == n
+    lines = [ln for ln in result.log.splitlines() if ln.startswith("MISMATCH")]
+    assert len(lines) == 10
+    assert f"... {n - 10} more errors not printed (MAX_REPORTS=10)" in result.log
+
+    result = run_bench(spec, tmp_path, build_root=tmp_path / "b", max_reports=n)
+    assert result.n_mismatches == n and "more errors not printed" not in result.log
+    lines = [ln for ln in result.log.splitlines() if ln.startswith("MISMATCH")]
+    assert [ln.split(":")[0] for ln in lines] == [
+        f"MISMATCH word {i} frame {f} sample {k} cut {samples[i]}" for i, (f, k) in enumerate(where)]
+
+    result = run_bench(spec, tmp_path, build_root=tmp_path / "b", max_reports=0)
+    assert result.n_mismatches == n and not any(ln.startswith("MISMATCH") for ln in result.log.splitlines())
+    assert result.first_mismatch.startswith("word 0 frame 0 sample 0 ")
+
+
 def test_bench_reports_a_missing_word(tmp_path):
     """An expected file one word short is an error, not a pass."""
     spec = _spec("so", 2, 0, alpha=3.0, input_bits=4)
@@ -262,6 +302,76 @@ def test_bench_catches_a_drain_one_step_too_long(tmp_path):
     (tmp_path / "core_long_drain.v").write_text(wrong, encoding="ascii")
     result = run_bench(spec, tmp_path, build_root=tmp_path / "b", core_sources=[tmp_path / "core_long_drain.v"])
     assert not result.passed and result.first_mismatch == "s_axis_tready still low after R+G drain cycles"
+
+
+def _core_copy(tmp_path: Path, find: str, replace: str, name: str) -> Path:
+    core = CORE_SOURCES[0].read_text(encoding="ascii")
+    assert core.count(find) == 1
+    path = tmp_path / name
+    path.write_text(core.replace(find, replace), encoding="ascii")
+    return path
+
+
+def test_waiting_sink_catches_a_tvalid_that_waits_for_tready(tmp_path):
+    """ARM IHI 0051A 2.2.1: a source must not wait for TREADY before asserting TVALID.
+
+    Such a core still delivers every word to a sink that raises TREADY on its
+    own, so only the sink that waits for TVALID can see the fault: nothing is
+    ever offered, and the bench's watchdog ends the run.
+    """
+    spec = _timing_set(tmp_path)
+    core = _core_copy(tmp_path, "assign m_axis_tvalid = out_valid;",
+                      "assign m_axis_tvalid = out_valid & m_axis_tready;", "core_valid_waits.v")
+    free = run_bench(spec, tmp_path, gap_percent=20, stall_percent=30, build_root=tmp_path / "b",
+                     core_sources=[core])
+    assert free.passed, free.first_mismatch
+    for gaps, stalls in ((20, 30), (0, 0)):
+        stuck = run_bench(spec, tmp_path, gap_percent=gaps, stall_percent=stalls, build_root=tmp_path / "b",
+                          core_sources=[core], sink="waits-for-valid")
+        assert not stuck.passed and stuck.n_mismatches == 1
+        assert stuck.first_mismatch.startswith("deadlock: output never became valid while the sink waited for TVALID")
+        assert f"0 of {count_hex_words(tmp_path / 'stimulus.hex')} words received" in stuck.first_mismatch
+        assert stuck.n_words == 0
+        assert "timeout" not in stuck.log
+    assert run_bench(spec, tmp_path, gap_percent=20, stall_percent=30, build_root=tmp_path / "b",
+                     sink="waits-for-valid").passed
+
+
+# A probe spliced into a copy of the core: in every cycle with TREADY high, was a word seen waiting
+# (TVALID high, TREADY low) in the cycle before? ARM IHI 0051A 2.2.1 lets a sink wait for exactly that.
+_PROBE = """
+    reg probe_seen_reg = 1'b0;
+    always @(posedge clk) begin
+        if (!rst && m_axis_tready === 1'b1 && !probe_seen_reg)
+            $display("PROBE: m_axis_tready high with no word seen waiting in the cycle before");
+        probe_seen_reg <= m_axis_tvalid === 1'b1 && m_axis_tready !== 1'b1;
+    end
+
+endmodule
+"""
+
+
+@pytest.mark.parametrize("stalls", [0, 40])
+def test_waiting_sink_raises_tready_only_for_a_word_it_has_seen(tmp_path, stalls):
+    spec = _timing_set(tmp_path)
+    core = _core_copy(tmp_path, "\nendmodule\n", _PROBE, "core_probe.v")
+    waiting = run_bench(spec, tmp_path, gap_percent=20, stall_percent=stalls, build_root=tmp_path / "b",
+                        core_sources=[core], sink="waits-for-valid")
+    assert waiting.passed, waiting.first_mismatch
+    assert "PROBE:" not in waiting.log
+    # The probe does see a sink that raises TREADY on its own.
+    free = run_bench(spec, tmp_path, gap_percent=20, stall_percent=stalls, build_root=tmp_path / "b",
+                     core_sources=[core])
+    assert free.passed and "PROBE:" in free.log
+
+
+def test_bench_options_are_checked(tmp_path):
+    spec = _timing_set(tmp_path)
+    for kwargs, field in ((dict(sink="lazy"), "sink"), (dict(max_reports=-1), "max_reports"),
+                          (dict(watchdog_cycles=1.5), "watchdog_cycles")):
+        with pytest.raises(SpecError) as err:
+            run_bench(spec, tmp_path, build_root=tmp_path / "b", **kwargs)
+        assert err.value.field == field
 
 
 @pytest.mark.parametrize("generation", ["2005", "2012"])

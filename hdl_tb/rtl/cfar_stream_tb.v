@@ -12,19 +12,31 @@
 // OUT_FILE in hex, and ends with one summary line:
 //   PASS <n_words>
 //   FAIL <n_errors> first=<description of the first error>
-// followed by $finish.
+// followed by $finish. The first MAX_REPORTS errors are printed in full;
+// every error is counted.
+//
+// The sink has two modes (SINK_WAITS_FOR_VALID). 0: m_axis_tready is drawn
+// every cycle without looking at m_axis_tvalid. 1: the sink waits for
+// TVALID, as ARM IHI 0051A 2.2.1 allows a sink to do: m_axis_tready is
+// raised, after the stall draw, only for a word it has seen waiting (TVALID
+// high, TREADY low) and falls after each transfer. A core whose TVALID waits
+// for TREADY, which 2.2.1 forbids, then deadlocks; a watchdog ends such a run
+// with "output never became valid while the sink waited for TVALID".
 //
 // It also checks, as errors:
 // - the output handshake (ARM IHI 0051A: once TVALID is high it stays high
 //   with TDATA stable until the transfer);
-// - with STALL_PERCENT = 0, the drain: s_axis_tready low for exactly R+G
-//   cycles after each accepted last marker, high again afterwards;
-// - with GAP_PERCENT = 0 and STALL_PERCENT = 0, the latency of every word:
-//   R+G+PIPELINE_STAGES cycles from its input transfer to its output transfer.
+// - with STALL_PERCENT = 0 and the sink not waiting for TVALID, the drain:
+//   s_axis_tready low for exactly R+G cycles after each accepted last
+//   marker, high again afterwards;
+// - with GAP_PERCENT = 0, STALL_PERCENT = 0 and the sink not waiting for
+//   TVALID, the latency of every word: R+G+PIPELINE_STAGES cycles from its
+//   input transfer to its output transfer.
 //
 // Every file name and knob below is a parameter and can also be overridden at
 // run time by a plusarg of the same name (+STIM_FILE=..., +GAP_PERCENT=...,
-// +DUMP, +DUMP_FILE=...), so one compiled image serves many runs.
+// +SINK_WAITS_FOR_VALID=1, +MAX_REPORTS=..., +DUMP, +DUMP_FILE=...), so one
+// compiled image serves many runs.
 module cfar_stream_tb;
 
     // ---------------- core parameters (see cfar_stream.v) ----------------
@@ -84,8 +96,13 @@ module cfar_stream_tb;
     parameter DUMP_FILE = "cfar_stream_tb.vcd";
     // Cycles before the bench gives up; 0 = automatic from the word count and the percentages.
     parameter integer TIMEOUT_CYCLES = 0;
-    // Mismatch lines printed in full (all are counted).
+    // Error lines printed in full (all errors are counted).
     parameter integer MAX_REPORTS = 10;
+    // Sink: 0 = m_axis_tready drawn every cycle, 1 = raised only after m_axis_tvalid was seen high.
+    parameter integer SINK_WAITS_FOR_VALID = 0;
+    // Cycles without a transfer on either port, while the sink waits for TVALID, before the bench reports a
+    // deadlock; 0 = automatic (1000 + 4 * (2 * (R + G) + PIPELINE_STAGES)).
+    parameter integer WATCHDOG_CYCLES = 0;
 
     // ---------------- derived ----------------
     // Cells from the CUT to either end of the window.
@@ -161,6 +178,9 @@ module cfar_stream_tb;
     integer n_words;
     integer n_expect;
     integer timeout;
+    integer max_reports;
+    integer sink_wait;
+    integer watchdog;
     integer out_fd;
     integer i;
 
@@ -168,6 +188,9 @@ module cfar_stream_tb;
     integer cycle      = 0;
     integer in_idx     = 0;   // next stimulus word to offer
     integer out_idx    = 0;   // next expected word
+    integer exp_frame  = 0;   // frame of the next expected word (expected last markers before it)
+    integer exp_sample = 0;   // its sample index within that frame
+    integer idle       = 0;   // cycles without a transfer while the sink waits for TVALID
     integer n_errors   = 0;
     integer drain_left = -1;  // cycles of s_axis_tready low still expected (-1: not in a drain)
     reg     active     = 1'b0; // between reset release and the last expected word
@@ -192,29 +215,17 @@ module cfar_stream_tb;
         end
     endtask
 
-    // Describe a wrong word: its frame and sample index (counted from the
-    // expected last markers), CUT and the expected and received fields.
-    integer scan;
-    integer frame_idx;
-    integer sample_idx;
+    // Describe a wrong word: its frame and sample index (exp_frame and
+    // exp_sample, advanced word by word from the expected last markers), CUT
+    // and the expected and received fields.
     task report_mismatch;
         input [OUT_W-1:0] expected;
         input [OUT_W-1:0] got;
         input             got_tlast;
         begin
-            frame_idx  = 0;
-            sample_idx = 0;
-            for (scan = 0; scan < out_idx; scan = scan + 1) begin
-                if (expect_mem[scan][LAST_BIT]) begin
-                    frame_idx  = frame_idx + 1;
-                    sample_idx = 0;
-                end else begin
-                    sample_idx = sample_idx + 1;
-                end
-            end
-            if (n_errors < MAX_REPORTS) begin
+            if (n_errors < max_reports) begin
                 $display("MISMATCH word %0d frame %0d sample %0d cut %0d: expected T=%0d det=%0d valid=%0d last=%0d, got cut %0d T=%0d det=%0d valid=%0d last=%0d (tlast %0d) [exp %h got %h]",
-                    out_idx, frame_idx, sample_idx, expected[INPUT_BITS-1:0],
+                    out_idx, exp_frame, exp_sample, expected[INPUT_BITS-1:0],
                     expected[T_LSB +: THRESHOLD_BITS], expected[DET_BIT], expected[V_BIT], expected[LAST_BIT],
                     got[INPUT_BITS-1:0], got[T_LSB +: THRESHOLD_BITS], got[DET_BIT], got[V_BIT], got[LAST_BIT],
                     got_tlast, expected, got);
@@ -222,7 +233,7 @@ module cfar_stream_tb;
             if (!have_first) begin
                 $sformat(first_error,
                     "word %0d frame %0d sample %0d cut %0d: expected T=%0d det=%0d valid=%0d last=%0d, got cut %0d T=%0d det=%0d valid=%0d last=%0d",
-                    out_idx, frame_idx, sample_idx, expected[INPUT_BITS-1:0],
+                    out_idx, exp_frame, exp_sample, expected[INPUT_BITS-1:0],
                     expected[T_LSB +: THRESHOLD_BITS], expected[DET_BIT], expected[V_BIT], expected[LAST_BIT],
                     got[INPUT_BITS-1:0], got[T_LSB +: THRESHOLD_BITS], got[DET_BIT], got[V_BIT], got[LAST_BIT]);
                 have_first = 1'b1;
@@ -234,6 +245,8 @@ module cfar_stream_tb;
     task finish_run;
         begin
             if (out_fd != 0) $fclose(out_fd);
+            if (n_errors > max_reports)
+                $display("... %0d more errors not printed (MAX_REPORTS=%0d)", n_errors - max_reports, max_reports);
             if (n_errors == 0) $display("PASS %0d", out_idx);
             else               $display("FAIL %0d first=%0s", n_errors, first_error);
             $finish;
@@ -267,6 +280,9 @@ module cfar_stream_tb;
         seed        = SEED;
         n_words     = N_WORDS;
         timeout     = TIMEOUT_CYCLES;
+        max_reports = MAX_REPORTS;
+        sink_wait   = SINK_WAITS_FOR_VALID;
+        watchdog    = WATCHDOG_CYCLES;
         first_error = "none";
         if ($value$plusargs("STIM_FILE=%s", stim_name)) ;
         if ($value$plusargs("EXPECT_FILE=%s", expect_name)) ;
@@ -277,6 +293,11 @@ module cfar_stream_tb;
         if ($value$plusargs("SEED=%d", seed)) ;
         if ($value$plusargs("N_WORDS=%d", n_words)) ;
         if ($value$plusargs("TIMEOUT_CYCLES=%d", timeout)) ;
+        if ($value$plusargs("MAX_REPORTS=%d", max_reports)) ;
+        if ($value$plusargs("SINK_WAITS_FOR_VALID=%d", sink_wait)) ;
+        if ($value$plusargs("WATCHDOG_CYCLES=%d", watchdog)) ;
+        if (max_reports < 0) max_reports = 0;
+        if (watchdog <= 0) watchdog = 1000 + 4 * (2 * HALF + PIPELINE_STAGES);
         // xorshift32 needs a non-zero state.
         gap_state   = (seed == 0) ? 32'h2545_F491 : seed;
         stall_state = ((seed ^ 32'h5A5A_3C3C) == 0) ? 32'h2545_F491 : (seed ^ 32'h5A5A_3C3C);
@@ -319,9 +340,11 @@ module cfar_stream_tb;
             // Generous: every word delayed by the worst gap and stall rates, plus drains.
             // Generous: frames are at least one window long, so drains add less
             // than one cycle per word; gaps and stalls slow the rest down.
+            // A sink that waits for TVALID takes at least two cycles a word.
             timeout = 1000 + 4 * (2 * HALF + PIPELINE_STAGES)
                       + 4 * n_words * (100 / (100 - (gap_pct > 95 ? 95 : gap_pct)) + 1)
-                                    * (100 / (100 - (stall_pct > 95 ? 95 : stall_pct)) + 1);
+                                    * (100 / (100 - (stall_pct > 95 ? 95 : stall_pct)) + 1)
+                                    * (sink_wait != 0 ? 2 : 1);
         end
 
         out_fd = $fopen(out_name, "w");
@@ -329,13 +352,13 @@ module cfar_stream_tb;
             $display("ERROR: cannot open %0s", out_name);
             note_error("cannot open the output file");
         end
-        $display("cfar_stream_tb: %0d words, GAP_PERCENT=%0d STALL_PERCENT=%0d SEED=%0d",
-                 n_words, gap_pct, stall_pct, seed);
+        $display("cfar_stream_tb: %0d words, GAP_PERCENT=%0d STALL_PERCENT=%0d SEED=%0d SINK_WAITS_FOR_VALID=%0d",
+                 n_words, gap_pct, stall_pct, seed, sink_wait != 0);
 
-        // Synchronous reset for a few cycles.
-        check_drain   = (stall_pct == 0);
-        check_latency = (gap_pct == 0 && stall_pct == 0);
-        m_tready      = 1'b1;
+        // Synchronous reset for a few cycles. A sink that waits for TVALID starts not ready.
+        check_drain   = (stall_pct == 0 && sink_wait == 0);
+        check_latency = (gap_pct == 0 && stall_pct == 0 && sink_wait == 0);
+        m_tready      = (sink_wait == 0);
         repeat (4) @(posedge clk);
         srst   <= (SRST_LEVEL != 0) ? 1'b0 : 1'b1;
         active <= (n_words > 0);
@@ -357,11 +380,13 @@ module cfar_stream_tb;
             if (drain_left >= 0) begin
                 if (check_drain) begin
                     if (drain_left > 0 && s_tready) begin
+                        if (n_errors < max_reports)
+                            $display("ERROR: cycle %0d: s_axis_tready high during the drain", cycle);
                         note_error("s_axis_tready high during the drain");
-                        $display("ERROR: cycle %0d: s_axis_tready high during the drain", cycle);
                     end else if (drain_left == 0 && !s_tready) begin
+                        if (n_errors < max_reports)
+                            $display("ERROR: cycle %0d: s_axis_tready still low after R+G drain cycles", cycle);
                         note_error("s_axis_tready still low after R+G drain cycles");
-                        $display("ERROR: cycle %0d: s_axis_tready still low after R+G drain cycles", cycle);
                     end
                 end
                 drain_left = drain_left - 1;
@@ -395,9 +420,10 @@ module cfar_stream_tb;
             // not taken stays offered, unchanged.
             if (prev_hold) begin
                 if (!m_tvalid || m_tdata !== prev_word) begin
+                    if (n_errors < max_reports)
+                        $display("ERROR: cycle %0d: m_axis_tvalid dropped or m_axis_tdata changed before the transfer",
+                                 cycle);
                     note_error("m_axis_tvalid dropped or m_axis_tdata changed before the transfer");
-                    $display("ERROR: cycle %0d: m_axis_tvalid dropped or m_axis_tdata changed before the transfer",
-                             cycle);
                 end
             end
 
@@ -411,11 +437,18 @@ module cfar_stream_tb;
                     if (check_latency) begin
                         latency = cycle - in_cycle[out_idx];
                         if (latency != HALF + PIPELINE_STAGES) begin
-                            if (n_errors < MAX_REPORTS)
+                            if (n_errors < max_reports)
                                 $display("ERROR: word %0d: latency %0d cycles, expected R+G+PIPELINE_STAGES = %0d",
                                          out_idx, latency, HALF + PIPELINE_STAGES);
                             note_error("latency differs from R+G+PIPELINE_STAGES at full rate");
                         end
+                    end
+                    // Frame and sample index of the next expected word.
+                    if (expect_mem[out_idx][LAST_BIT] === 1'b1) begin
+                        exp_frame  = exp_frame + 1;
+                        exp_sample = 0;
+                    end else begin
+                        exp_sample = exp_sample + 1;
                     end
                     out_idx = out_idx + 1;
                     if (out_idx == n_words) begin
@@ -431,9 +464,37 @@ module cfar_stream_tb;
                 prev_hold = 1'b0;
             end
 
-            if (stall_pct > 0) begin
+            // TREADY for the next cycle.
+            if (sink_wait != 0) begin
+                // ARM IHI 0051A 2.2.1: a sink may wait for TVALID before raising TREADY. Only a word seen
+                // waiting (TVALID high, TREADY low) is made ready, after the stall draw; after a transfer
+                // TREADY falls until the next word is seen.
+                if (m_tvalid === 1'b1 && !m_tready) begin
+                    if (stall_pct > 0) stall_state = xorshift32(stall_state);
+                    m_tready <= (stall_pct == 0 || (stall_state % 100) >= stall_pct);
+                end else begin
+                    m_tready <= 1'b0;
+                end
+            end else if (stall_pct > 0) begin
                 stall_state = xorshift32(stall_state);
                 m_tready <= ((stall_state % 100) >= stall_pct);
+            end
+
+            // Deadlock watchdog of the waiting sink: no word offered at the output and no input transfer.
+            if (sink_wait != 0) begin
+                if (m_tvalid === 1'b1 || (s_tvalid && s_tready === 1'b1)) idle = 0;
+                else idle = idle + 1;
+                if (active && idle >= watchdog) begin
+                    $display("ERROR: cycle %0d: output never became valid while the sink waited for TVALID: no transfer on either port for %0d cycles, %0d of %0d words received (ARM IHI 0051A 2.2.1: a source must not wait for TREADY before asserting TVALID)",
+                             cycle, idle, out_idx, n_words);
+                    if (!have_first) begin
+                        $sformat(first_error, "deadlock: output never became valid while the sink waited for TVALID (%0d cycles without a transfer, %0d of %0d words received)",
+                                 idle, out_idx, n_words);
+                        have_first = 1'b1;
+                    end
+                    n_errors = n_errors + 1;
+                    finish_run;
+                end
             end
 
             cycle = cycle + 1;
@@ -450,15 +511,16 @@ module cfar_stream_tb;
         end
     end
 
-    // After the last expected word: keep the sink ready for a few cycles and
-    // count anything more the core emits, then report.
+    // After the last expected word: keep the sink ready (a waiting sink: for
+    // every word it sees) for a few cycles and count anything more the core
+    // emits, then report.
     always @(posedge clk) begin
         if (done) begin
-            m_tready <= 1'b1;
+            m_tready <= (sink_wait == 0) || (m_tvalid === 1'b1 && !m_tready);
             if (m_tvalid && m_tready) begin
                 $fwrite(out_fd, "%h\n", m_tdata);
+                if (n_errors < max_reports) $display("ERROR: extra output word %h", m_tdata);
                 note_error("more output words than input words");
-                $display("ERROR: extra output word %h", m_tdata);
             end
         end
     end
