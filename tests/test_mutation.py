@@ -4,9 +4,12 @@ The mutation check itself is the test that the vectors have teeth: each mutant
 is a copy of ``hdl_tb/rtl/cfar_stream.v`` with one rule of ``docs/bit-true.md``
 or of the AXI4-Stream handshake (ARM IHI 0051A, section 2.2.1) broken, and
 the pure-Verilog bench, fed with the vector set of each check spec under input
-gaps and output backpressure, must fail it. So that a kill cannot come from a
-broken harness, the unmodified core must pass the very same runs, word for
-word against the expected files the vector generator wrote.
+gaps and output backpressure, must fail it. The runs use both kinds of sink
+that section 2.2.1 allows: one that raises TREADY without looking at TVALID
+and one that waits for TVALID first, which alone can see a core whose TVALID
+waits for TREADY. So that a kill cannot come from a broken harness, the
+unmodified core must pass the very same runs, word for word against the
+expected files the vector generator wrote.
 
 ``CFARVEC_LONG=1`` uses much larger vector sets and adds a full-rate run and
 a run with heavy gaps and backpressure.
@@ -72,7 +75,7 @@ def test_unmodified_core_passes_the_same_runs(check_sets, work):
         expected = [int(w, 16) for w in (s.folder / "expected.hex").read_text(encoding="ascii").split()]
         for run in RUNS:
             r = run_bench(s.spec, s.folder, gap_percent=run.gap_percent, stall_percent=run.stall_percent,
-                          seed=run.seed, build_root=work / "reference")
+                          seed=run.seed, build_root=work / "reference", sink=run.sink)
             assert r.passed, f"{s.name} {run}: {r.first_mismatch}"
             assert [int(w, 16) for w in r.received_file.read_text(encoding="ascii").split()] == expected
 
@@ -85,6 +88,18 @@ def test_every_mutant_is_killed(check_sets, work):
     assert [r.mutant.name for r in results] == [m.name for m in mutation.MUTANTS]
     assert report.survivors == [], "\n".join(report.lines())
     assert report.lines()[-1] == f"killed {len(results)} of {len(results)} mutants (100.0 %)"
+    # ARM IHI 0051A 2.2.1: TVALID that waits for TREADY deadlocks only a sink that waits for TVALID.
+    waits = next(r for r in results if r.mutant.name == "valid_waits_for_ready")
+    assert " sink waits-for-valid: deadlock: output never became valid while the sink waited for TVALID" \
+        in waits.killed_by
+
+
+def test_runs_use_both_kinds_of_sink():
+    # ARM IHI 0051A 2.2.1: a sink may raise TREADY before TVALID, or wait for TVALID first.
+    for runs in (mutation.DEFAULT_RUNS, mutation.LONG_RUNS):
+        assert {r.sink for r in runs} == {"independent", "waits-for-valid"}
+    assert mutation.BenchRun(20, 30, 8, "waits-for-valid").describe() == "gap 20 stall 30 seed 8 sink waits-for-valid"
+    assert mutation.BenchRun(20, 30, 7).describe() == "gap 20 stall 30 seed 7"
 
 
 def test_script_refuses_a_spec_the_core_cannot_build(capsys):
