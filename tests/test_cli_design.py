@@ -13,6 +13,7 @@ import sys
 from pathlib import Path
 
 import pytest
+from scipy import integrate, optimize, stats
 
 from cfarvec import cli
 
@@ -132,14 +133,52 @@ def test_alpha_given_reports_its_pfa(capsys):
     assert case["cfar_loss_db"] == pytest.approx(10 * math.log10(s_ca / s_ideal), abs=1e-7)
 
 
+def _os_pd(alpha, n, k, snr, swerling):
+    """OS-CFAR Pd on unit exponential noise, written here from published models.
+
+    Swerling I: the CUT is exponential of mean 1 + SNR, so Pd is Rohling's Pfa product with alpha
+    replaced by alpha / (1 + SNR) (Rohling, IEEE Trans. AES-19(4), 1983). Swerling 0: Pd =
+    E_Z[Q1(sqrt(2 SNR), sqrt(2 alpha Z))] with Q1 = scipy.stats.ncx2.sf(2 t, 2, 2 SNR) (Marcum 1960)
+    and Z the k-th smallest of n unit exponentials, density k C(n, k) F^(k-1) (1 - F)^(n-k) f
+    (David & Nagaraja, Order Statistics, 3rd ed., 2003, sec. 2.1), by scipy.integrate.quad.
+    """
+    if swerling == 1:
+        return math.prod((n - i) / (n - i + alpha / (1 + snr)) for i in range(k))
+    c = k * math.comb(n, k)
+
+    def integrand(z):
+        f = -math.expm1(-z)
+        return stats.ncx2.sf(2 * alpha * z, 2, 2 * snr) * c * f ** (k - 1) * math.exp(-z * (n - k + 1))
+
+    # Beyond z = 40 the density is below e^(-40 (n - k + 1)): nothing left to integrate.
+    val, _ = integrate.quad(integrand, 0.0, 40.0, points=[0.5, 1.0, 2.0, 4.0], epsabs=1e-13, epsrel=1e-11, limit=200)
+    return val
+
+
 def test_os_json(capsys):
     report = _run_json(capsys, "--detector", "os", "--ref-cells", "24", "--rank", "18", "--pfa", "1e-4", "--pd", "0.8")
     alpha = report["alpha"]
     # Rohling, IEEE Trans. AES-19(4), 1983: Pfa = prod_{i<k} (N-i)/(N-i+alpha)
     assert math.prod((24 - i) / (24 - i + alpha) for i in range(18)) == pytest.approx(1e-4, rel=1e-9)
     assert report["rank"] == 18 and report["loss_pd"] == 0.8
+    t = -math.log(1e-4)
     for case in report["swerling"]:
-        assert case["cfar_loss_db"] == pytest.approx(case["snr_db_required"] - case["snr_db_ideal"], abs=1e-12)
+        sw = case["swerling"]
+        # Ideal (known noise, threshold t = -ln Pfa): Swerling I, Pd = Pfa^(1/(1+S)), so 1 + S = ln Pfa / ln Pd
+        # (Richards 2005, ch. 6); Swerling 0, Pd = ncx2.sf(2t, 2, 2S) (Marcum 1960), solved with brentq.
+        if sw == 1:
+            s_ideal = math.log(1e-4) / math.log(0.8) - 1
+        else:
+            s_ideal = optimize.brentq(lambda s: stats.ncx2.sf(2 * t, 2, 2 * s) - 0.8, 1e-3, 1e3, xtol=1e-13, rtol=1e-14)
+        # Required SNR of the OS detector: Pd(SNR) = 0.8 solved in dB with brentq.
+        snr_db = optimize.brentq(lambda db: _os_pd(alpha, 24, 18, 10 ** (db / 10), sw) - 0.8, 0.0, 30.0,
+                                 xtol=1e-11, rtol=1e-14)
+        # CFAR loss = required minus ideal SNR (Richards 2005, ch. 7). 1e-7 dB: the code's root-finders stop
+        # within 1e-9 dB (threshold_design.required_snr_db); the quadrature here (epsrel 1e-11) and the
+        # root-finding (xtol 1e-11 dB) add far less, the slope dPd/dSNR_dB being about 0.1 per dB.
+        assert case["snr_db_ideal"] == pytest.approx(10 * math.log10(s_ideal), abs=1e-7)
+        assert case["snr_db_required"] == pytest.approx(snr_db, abs=1e-7)
+        assert case["cfar_loss_db"] == pytest.approx(snr_db - 10 * math.log10(s_ideal), abs=1e-7)
         assert case["cfar_loss_db"] > 0  # Richards 2005, ch. 7: the CFAR detector needs more SNR
 
 
