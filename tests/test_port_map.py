@@ -2,10 +2,11 @@
 
 Sources beside each check:
 
-- IEEE Std 1364-2005, section 3.7.1 (simple and escaped identifiers, the
+- IEEE Std 1364-2005, section 3.7 (simple identifiers, case sensitive, the
   examples ``shiftreg_a``, ``busa_index``, ``error_condition``, ``merge_ab``,
-  ``_bus3``, ``n$657`` and ``\\busa+index``, ``\\-clock``; the length limit of
-  at least 1024 characters), section 3.7.3 and Annex B (keywords, lowercase);
+  ``_bus3``, ``n$657``; the length limit of at least 1024 characters),
+  section 3.7.1 (escaped identifiers, the examples ``\\busa+index``,
+  ``\\-clock``), section 3.7.2 and Annex B (keywords, lowercase);
 - IEEE Std 1800-2012, Annex B (SystemVerilog keywords; the cocotb runner
   compiles with ``-g2012``);
 - ``docs/bit-true.md`` section 8 (the standard output word layout);
@@ -48,13 +49,13 @@ def _error(ports, **kw) -> SpecError:
 
 @pytest.mark.parametrize("name", ["shiftreg_a", "busa_index", "error_condition", "merge_ab", "_bus3", "n$657"])
 def test_identifier_examples_of_the_standard_are_accepted(name):
-    # IEEE Std 1364-2005, 3.7.1: these six are the standard's own examples of legal identifiers.
+    # IEEE Std 1364-2005, 3.7: these six are the standard's own examples of legal identifiers.
     assert check_identifier("ports.clock", name) == name
 
 
 @pytest.mark.parametrize("name", ["1bus", "$bus", "bus-a", "bus a", "bus.a", "ünï", "a\nb", ""])
 def test_names_breaking_the_identifier_rule_are_refused(name):
-    # IEEE Std 1364-2005, 3.7.1: first character a letter or underscore, then letters, digits, $ and _.
+    # IEEE Std 1364-2005, 3.7: first character a letter or underscore, then letters, digits, $ and _.
     with pytest.raises(SpecError) as err:
         check_identifier("ports.in_data", name)
     assert err.value.field == "ports.in_data"
@@ -86,13 +87,13 @@ def test_systemverilog_keywords_are_refused(word):
 
 
 def test_keywords_are_lowercase_only():
-    # IEEE Std 1364-2005, 3.7.3: keywords are lowercase; identifiers are case sensitive (3.7.1).
+    # IEEE Std 1364-2005, 3.7.2: keywords are lowercase; identifiers are case sensitive (3.7).
     assert check_identifier("ports.clock", "Wire") == "Wire"
     assert check_identifier("ports.clock", "MODULE") == "MODULE"
 
 
 def test_identifier_length_limit_is_the_standards_minimum():
-    # IEEE Std 1364-2005, 3.7.1: a length limit, if any, shall be at least 1024 characters.
+    # IEEE Std 1364-2005, 3.7: a length limit, if any, shall be at least 1024 characters.
     assert check_identifier("ports.clock", "a" * 1024) == "a" * 1024
     with pytest.raises(SpecError):
         check_identifier("ports.clock", "a" * 1025)
