@@ -108,8 +108,12 @@ def test_xilinx_flow_has_no_latch_and_maps_the_product_to_a_dsp(xilinx_report, d
     assert r.latches == ()
     assert sum(r.cells.values()) == r.n_cells
     assert r.luts > 0 and r.carries > 0
-    # A 21 x 12 bit product fits the 25 x 18 multiplier of one DSP48E1 (Xilinx UG479); Yosys maps it there
-    # (shared toolchain notes: a 16x12 constant multiply maps to one DSP48E1).
+    # The product S * A of the default spec: S is statistic_bits = W_S + 1 = 21 bits (W_S = bitlen(16 * 65535)
+    # = 20, docs/bit-true.md section 3) and A = floor(17.28 * 2^12 / 32 + 1/2) = 2212 is 12 bits (section 4):
+    # a 21 x 12 unsigned product, 22 x 13 as two's complement, which fits the 25 x 18 two's-complement
+    # multiplier of one DSP48E1 slice (Xilinx, "7 Series DSP48E1 Slice User Guide", UG479, ch. 2, from memory),
+    # so one DSP48E1 is expected.
+    assert default_spec.statistic_bits == 21 and default_spec.alpha_int.bit_length() == 12
     assert r.dsps == 1
     # Shift-register LUTs hold up to 16 (SRL16E) or 32 (SRLC32E) bits each.
     srl_bits = 16 * r.cells.get("SRL16E", 0) + 32 * r.cells.get("SRLC32E", 0)
