@@ -38,7 +38,7 @@ from refmodel.block_spec import spec_from_dict
 from refmodel.errors import SpecError
 from refmodel.pipeline_fast import run_fast
 from refmodel.pipeline_struct import run_structural
-from test_block_spec import constant_a, dropped_bits, t0_of, threshold_word
+from test_block_spec import constant_a, divisor, dropped_bits, t0_of, threshold_word
 
 CONF = 0.999
 
@@ -298,7 +298,8 @@ def test_ca_converges_to_finn_johnson_formula():
     ``1 + (alpha - 1) / (2 m)`` (first-order derivation, no source).
     """
     spec = make_spec("ca", r=4, pfa=1e-6, input_bits=24, alpha_frac_bits=16, threshold_frac_bits=4)
-    n, a = 8, spec.realised_alpha
+    # Realised alpha from the written rule (docs/bit-true.md section 4): A * D / 2^F_A, D = 8.
+    n, a = 8, constant_a(spec) * 8 / 2**16
     formula = (1.0 + a / n) ** (-n)
     errs = []
     mus = (2.0**6, 2.0**9, 2.0**13)
@@ -327,8 +328,9 @@ def test_go_so_os_converge_to_float_formulas(kind, rank):
     is of relative size about ``x / 2``; the check allows ``x`` (twice that) plus 1 %.
     """
     spec = make_spec(kind, r=4, pfa=1e-5, rank=rank, input_bits=24, alpha_frac_bits=16, threshold_frac_bits=4)
-    formula = td.pfa_from_alpha(kind, 8, spec.realised_alpha, rank)
-    first_order = (spec.realised_alpha - 1) / 2
+    a_r = constant_a(spec) * divisor(kind, 4) / 2**16  # realised alpha, A * D / 2^F_A (section 4)
+    formula = td.pfa_from_alpha(kind, 8, a_r, rank)
+    first_order = (a_r - 1) / 2
     for mu in (2.0**9, 2.0**12):
         excess = ep.trigger_law(spec, mu).pfa() / formula - 1
         x = first_order / mu
