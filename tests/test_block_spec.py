@@ -274,7 +274,8 @@ def test_so_with_a_wider_sum_register():
     assert spec.mean_divisor == 3 and spec.mean_shift == 0
     assert spec.alpha_int == 43  # 4 * 32 / 3 = 42.67 -> floor(43.17) = 43
     assert spec.drop_bits == 5
-    # half-up: (3069 * 43 + 16) >> 5 = (131967 + 16) >> 5 = 131983 >> 5 = 4124 (131983 / 32 = 4124.47); 2^12 <= 4124 < 2^13
+    # half-up: (3069 * 43 + 16) >> 5 = (131967 + 16) >> 5 = 131983 >> 5 = 4124 (131983 / 32 = 4124.47);
+    # 2^12 <= 4124 < 2^13
     assert spec.threshold_bits == 13
     assert spec.realised_alpha == 43 * 3 / 32  # 4.03125
     assert spec.output_bits == 26  # 10 + 13 + 3
@@ -282,7 +283,8 @@ def test_so_with_a_wider_sum_register():
 
 
 def test_os_csd_half_even_circular():
-    """OS, R = 6, k = 9, W_in = 8, alpha = 3.1, F_A = 10, 2 CSD digits, F_T = 3, half-even, circular, L = 100, 3 stages."""
+    """OS, R = 6, k = 9, W_in = 8, alpha = 3.1, F_A = 10, 2 CSD digits, F_T = 3, half-even, circular,
+    L = 100, 3 stages."""
     spec = _spec({"kind": "os", "ref_cells_per_side": 6, "rank": 9, "alpha": 3.1, "edge": "circular"},
                  {"input_bits": 8, "alpha_frac_bits": 10, "alpha_csd_digits": 2, "threshold_frac_bits": 3,
                   "rounding": "half-even"},

@@ -203,7 +203,8 @@ def test_os_max_rank_and_cross_kind_identities(n_ref, alpha):
     # with N = 1 is OS(1, 1). Closed forms: Rohling 1983, prod_{i<k} (N-i)/(N-i+alpha), gives
     # 2/((2+a)(1+a)), 2/(2+a) and 1/(1+a); go_sum / so_sum with n = 1 give the same GO and SO values.
     go, so, ca1 = 2 / ((2 + alpha) * (1 + alpha)), 2 / (2 + alpha), 1 / (1 + alpha)
-    assert float(go_sum(1, alpha)) == pytest.approx(go, rel=1e-14) and float(so_sum(1, alpha)) == pytest.approx(so, rel=1e-14)
+    assert float(go_sum(1, alpha)) == pytest.approx(go, rel=1e-14)
+    assert float(so_sum(1, alpha)) == pytest.approx(so, rel=1e-14)
     assert td.pfa_from_alpha("go", 2, alpha) == pytest.approx(go, rel=1e-12)
     assert td.pfa_from_alpha("os", 2, alpha, 2) == pytest.approx(go, rel=1e-12)
     assert td.pfa_from_alpha("so", 2, alpha) == pytest.approx(so, rel=1e-12)
