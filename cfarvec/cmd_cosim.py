@@ -11,7 +11,7 @@ from __future__ import annotations
 import argparse
 
 from hdl_tb.cosim import cosim, format_summary
-from hdl_tb.tb_generator import MODES
+from hdl_tb.tb_generator import DEFAULT_SINK, MODES, SINK_MODES
 from refmodel.block_spec import load_spec
 
 from .cmd_testbench import add_bench_options
@@ -23,8 +23,11 @@ one bench and print a one-screen summary (words compared, mismatches, the
 first mismatch with its frame, sample index, CUT and fields, simulation
 speed). Modes: bulk (cocotb, a Verilog driver streams the vector file; the
 fastest), interactive (cocotb, Python drives and checks word by word),
-verilog (the pure-Verilog self-checking bench, no Python). Exit status 0:
-pass; 1: mismatch; 2: bad input."""
+verilog (the pure-Verilog self-checking bench, no Python). --sink
+waits-for-valid makes the output sink raise TREADY only after it has seen
+TVALID high (ARM IHI 0051A 2.2.1 allows a sink to wait), so a module whose
+TVALID waits for TREADY deadlocks and fails. Exit status 0: pass; 1:
+mismatch; 2: bad input."""
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
@@ -44,6 +47,9 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                               description=_DESCRIPTION, formatter_class=argparse.RawDescriptionHelpFormatter)
     add_bench_options(p)
     p.add_argument("--mode", choices=MODES, default="bulk", help="which bench to run (default bulk)")
+    p.add_argument("--sink", choices=SINK_MODES, default=DEFAULT_SINK,
+                   help="output sink: independent raises TREADY without looking at TVALID, waits-for-valid only "
+                        f"after seeing TVALID high (default {DEFAULT_SINK})")
     p.add_argument("--waves", action="store_true", help="write a waveform (the folder is then kept)")
     p.add_argument("--keep", metavar="DIR", help="write the testbench folder here and keep it")
     p.add_argument("--force", action="store_true", help="replace the --keep folder if it is not empty")
@@ -55,7 +61,7 @@ def run(args: argparse.Namespace) -> int:
     """Run the co-simulation; print the summary; 0 on a pass, 1 on a mismatch."""
     spec = load_spec(args.spec)
     result = cosim(spec, rtl=args.rtl, top=args.top, mode=args.mode, samples=args.samples, seed=args.seed,
-                   gap_percent=args.gaps, stall_percent=args.stalls, waves=args.waves, folder=args.keep,
-                   force=args.force)
+                   gap_percent=args.gaps, stall_percent=args.stalls, sink=args.sink, waves=args.waves,
+                   folder=args.keep, force=args.force)
     print(format_summary(result))
     return 0 if result.passed else 1

@@ -12,7 +12,11 @@ command); :func:`run_folder` runs one mode of a folder written by
     the pure-Verilog self-checking testbench, ``iverilog`` + ``vvp`` only.
 
 Each run returns a :class:`CosimResult`; :func:`format_summary` renders it
-as one screen. The cocotb modes are built and started with
+as one screen. Every mode has two output sinks (``sink``): ``"independent"``
+raises TREADY without looking at TVALID; ``"waits-for-valid"`` raises it only
+for a word it has seen waiting, as ARM IHI 0051A 2.2.1 allows a sink to do,
+so a module whose TVALID waits for TREADY deadlocks and the run fails with
+"output never became valid while the sink waited for TVALID". The cocotb modes are built and started with
 ``cocotb_tools.runner`` in the same build folders the folder's own pytest
 runner uses (one per mode and parameter set); every mode leaves a JUnit XML
 file ``results.xml`` in its build folder.
@@ -40,8 +44,8 @@ from typing import Iterator, Mapping, Sequence
 from refmodel.block_spec import BlockSpec
 from refmodel.errors import SpecError, require
 
-from .tb_generator import (COCOTB_MODULE, DEFAULT_GAP_PERCENT, DEFAULT_STALL_PERCENT, MODES, VERILOG_TOP,
-                           read_config, read_stimulus, whole_frames, write_testbench)
+from .tb_generator import (COCOTB_MODULE, DEFAULT_GAP_PERCENT, DEFAULT_SINK, DEFAULT_STALL_PERCENT, MODES,
+                           VERILOG_TOP, check_sink, read_config, read_stimulus, whole_frames, write_testbench)
 from .verilog_bench import find_tools
 
 RUN_FILE = "cfarvec_run.json"
@@ -60,7 +64,7 @@ class CosimResult:
     mode : {"bulk", "interactive", "verilog"}
     passed : bool
         Every expected word arrived, equal to the expected one, with no
-        handshake error, extra word or timeout.
+        handshake error, extra word, deadlock or timeout.
     words_expected : int
         Words streamed (a whole number of frames).
     words_compared : int
@@ -193,7 +197,7 @@ def _junit_failure(path: Path) -> str | None:
 
 def run_folder(folder: str | Path, mode: str = "bulk", *, samples: int | None = None,
                gap_percent: int | None = None, stall_percent: int | None = None, seed: int | None = None,
-               waves: bool = False) -> CosimResult:
+               sink: str | None = None, waves: bool = False) -> CosimResult:
     """Build and run one mode of a generated testbench folder.
 
     Parameters
@@ -206,6 +210,9 @@ def run_folder(folder: str | Path, mode: str = "bulk", *, samples: int | None = 
         frame (default: the folder's setting).
     gap_percent, stall_percent, seed : int, optional
         Override the folder's input gaps, output backpressure and their seed.
+    sink : {"independent", "waits-for-valid"}, optional
+        Override the folder's output sink (folders written before the sink
+        modes existed use ``"independent"``).
     waves : bool
         Write a waveform (FST for the cocotb modes, VCD for ``verilog``).
 
@@ -224,7 +231,7 @@ def run_folder(folder: str | Path, mode: str = "bulk", *, samples: int | None = 
     config = read_config(folder)
     iverilog, vvp = find_tools()
     words = _words_for_run(folder, config, samples)
-    run = {"words": words, "gap_percent": gap_percent, "stall_percent": stall_percent, "seed": seed}
+    run = {"words": words, "gap_percent": gap_percent, "stall_percent": stall_percent, "seed": seed, "sink": sink}
     for name, key in (("--gaps", "gap_percent"), ("--stalls", "stall_percent")):
         value = run[key]
         if value is not None:
@@ -233,7 +240,10 @@ def run_folder(folder: str | Path, mode: str = "bulk", *, samples: int | None = 
     if seed is not None:
         require(isinstance(seed, int) and not isinstance(seed, bool) and 0 <= seed < 2**31, "--seed",
                 f"got {seed!r}", "an integer 0..2147483647")
-    settings = {k: (v if v is not None else config[k]) for k, v in run.items() if k != "words"}
+    if sink is not None:
+        check_sink(sink)
+    defaults = {**config, "sink": config.get("sink", DEFAULT_SINK)}
+    settings = {k: (v if v is not None else defaults[k]) for k, v in run.items() if k != "words"}
     where = build_dir(folder, config, mode, waves)
     where.mkdir(parents=True, exist_ok=True)
     if mode == "verilog":
@@ -290,9 +300,11 @@ def _run_cocotb(folder: Path, config: Mapping, mode: str, where: Path, words: in
 def _run_verilog(folder: Path, config: Mapping, where: Path, words: int, settings: dict, waves: bool,
                  iverilog: str, vvp: str) -> CosimResult:
     m = config["modes"]["verilog"]
-    if not config["reference_core"] and int(settings["stall_percent"]) == 0:
+    waits = settings["sink"] == "waits-for-valid"
+    if not config["reference_core"] and int(settings["stall_percent"]) == 0 and not waits:
         raise SpecError("--stalls", "0 makes the pure-Verilog bench check the reference core's drain and latency, "
-                        "which a core of your own need not share", "1..95 with --rtl in verilog mode")
+                        "which a core of your own need not share",
+                        "1..95 with --rtl in verilog mode (or --sink waits-for-valid)")
     image = where / "bench.vvp"
     sources = [folder / s for s in m["sources"]]
     stale = not image.is_file() or any(s.stat().st_mtime > image.stat().st_mtime for s in sources)
@@ -313,7 +325,7 @@ def _run_verilog(folder: Path, config: Mapping, where: Path, words: int, setting
     args = [vvp, "-n", str(image), f"+STIM_FILE={folder / config['stimulus']}",
             f"+EXPECT_FILE={folder / config['expected']}", f"+OUT_FILE={received}",
             f"+GAP_PERCENT={settings['gap_percent']}", f"+STALL_PERCENT={settings['stall_percent']}",
-            f"+SEED={settings['seed'] & 0x7FFFFFFF}", f"+N_WORDS={words}"]
+            f"+SEED={settings['seed'] & 0x7FFFFFFF}", f"+N_WORDS={words}", f"+SINK_WAITS_FOR_VALID={int(waits)}"]
     wave_file = where / f"{VERILOG_TOP}.vcd" if waves else None
     if wave_file is not None:
         args += ["+DUMP", f"+DUMP_FILE={wave_file}"]
@@ -342,7 +354,7 @@ def _run_verilog(folder: Path, config: Mapping, where: Path, words: int, setting
         samples_per_second=words / seconds if seconds > 0 else 0.0, stream_seconds=seconds,
         module=config["port_map"]["module"], folder=folder, build_dir=where, results_xml=results, waves=wave_file,
         log_file=log_file,
-        details={"log_tail": log[-2000:]},
+        details={"log_tail": log[-2000:], "sink": settings["sink"]},
     )
 
 
@@ -353,8 +365,8 @@ def _run_verilog(folder: Path, config: Mapping, where: Path, words: int, setting
 
 def cosim(spec: BlockSpec, *, rtl: Sequence[str | Path] = (), top: str | None = None, mode: str = "bulk",
           samples: int | None = None, seed: int | None = None, gap_percent: int = DEFAULT_GAP_PERCENT,
-          stall_percent: int = DEFAULT_STALL_PERCENT, waves: bool = False, folder: str | Path | None = None,
-          force: bool = False) -> CosimResult:
+          stall_percent: int = DEFAULT_STALL_PERCENT, sink: str = DEFAULT_SINK, waves: bool = False,
+          folder: str | Path | None = None, force: bool = False) -> CosimResult:
     """Generate a testbench folder for ``spec``, build it and run one mode.
 
     Parameters
@@ -370,6 +382,9 @@ def cosim(spec: BlockSpec, *, rtl: Sequence[str | Path] = (), top: str | None = 
         Seed of the vector set and of the gaps and backpressure.
     gap_percent, stall_percent : int
         Input gaps and output backpressure, percent of cycles (0..95).
+    sink : {"independent", "waits-for-valid"}
+        Output sink: TREADY drawn every cycle, or raised only after TVALID
+        was seen high.
     waves : bool
         Write a waveform.
     folder : path, optional
@@ -397,7 +412,7 @@ def cosim(spec: BlockSpec, *, rtl: Sequence[str | Path] = (), top: str | None = 
         base, target = None, Path(folder)
     try:
         write_testbench(spec, target, rtl=rtl, top=top, force=force, seed=seed, samples=samples,
-                        gap_percent=gap_percent, stall_percent=stall_percent)
+                        gap_percent=gap_percent, stall_percent=stall_percent, sink=sink)
         result = run_folder(target, mode, waves=waves)
         return dataclasses.replace(result, kept=keep)
     finally:
@@ -415,6 +430,9 @@ def format_summary(result: CosimResult) -> str:
         f"  missing / extra  {result.missing_words:,} / {result.extra_words:,}",
         f"  first mismatch   {result.first_mismatch or '-'}",
     ]
+    sink = result.details.get("sink")
+    if sink:
+        lines.append(f"  output sink      {sink}")
     stream_rate = result.words_expected / result.stream_seconds if result.stream_seconds > 0 else 0.0
     if result.mode == "verilog":
         lines.append(f"  simulation       {result.sim_seconds:.2f} s, {result.samples_per_second:,.0f} samples/s")

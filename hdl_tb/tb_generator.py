@@ -71,6 +71,10 @@ VERILOG_TOP = "cfar_stream_tb"
 MODES = ("bulk", "interactive", "verilog")
 DEFAULT_GAP_PERCENT = 20
 DEFAULT_STALL_PERCENT = 30
+#: Output sinks: TREADY drawn every cycle without looking at TVALID, or raised only for a word seen waiting
+#: (ARM IHI 0051A 2.2.1 allows a sink either).
+SINK_MODES = ("independent", "waits-for-valid")
+DEFAULT_SINK = "independent"
 #: Codes of what the reference core lacks; the parameters are still passed to a core of the user's own.
 EXTRA_KIND_CODE = 3
 EXTRA_EDGE_CODE = 3
@@ -346,6 +350,12 @@ def _check_percent(name: str, value) -> int:
     return value
 
 
+def check_sink(sink) -> str:
+    """``sink`` if it names an output sink mode (:data:`SINK_MODES`), else SpecError ``--sink``."""
+    require(sink in SINK_MODES, "--sink", f"got {sink!r}", " or ".join(SINK_MODES))
+    return sink
+
+
 _SAFE_FILE_NAME = re.compile(r"[A-Za-z0-9_][A-Za-z0-9_.+-]*")
 _SAFE_PATH = re.compile(r"/?([A-Za-z0-9_.+-]+/)*[A-Za-z0-9_.+-]+")
 
@@ -370,7 +380,7 @@ def resolve_rtl(rtl: Sequence[str | Path]) -> list[Path]:
 def write_testbench(spec: BlockSpec, output: str | Path, *, rtl: Sequence[str | Path] = (), top: str | None = None,
                     force: bool = False, seed: int | None = None, samples: int | None = None,
                     gap_percent: int = DEFAULT_GAP_PERCENT, stall_percent: int = DEFAULT_STALL_PERCENT,
-                    check_ports: bool = True) -> BenchFolder:
+                    sink: str = DEFAULT_SINK, check_ports: bool = True) -> BenchFolder:
     """Generate a co-simulation testbench folder.
 
     Parameters
@@ -394,6 +404,10 @@ def write_testbench(spec: BlockSpec, output: str | Path, *, rtl: Sequence[str | 
         the vector set gets more random frames when it is shorter.
     gap_percent, stall_percent : int
         Percent of cycles with no input offered / with the output not ready, 0..95.
+    sink : {"independent", "waits-for-valid"}
+        The benches' default output sink: TREADY drawn every cycle, or raised
+        only after TVALID was seen high (a module whose TVALID waits for
+        TREADY then deadlocks and fails).
     check_ports : bool
         Elaborate the module with the port map first (needs Icarus Verilog;
         skipped, with ``ports_checked = False``, when it is missing).
@@ -421,6 +435,7 @@ def write_testbench(spec: BlockSpec, output: str | Path, *, rtl: Sequence[str | 
     dut_params = module_parameters(pm, bench)
     gap_percent = _check_percent("--gaps", gap_percent)
     stall_percent = _check_percent("--stalls", stall_percent)
+    check_sink(sink)
     if samples is not None:
         require(isinstance(samples, int) and not isinstance(samples, bool) and samples >= 1, "--samples",
                 f"got {samples!r}", "an integer >= 1")
@@ -456,7 +471,7 @@ def write_testbench(spec: BlockSpec, output: str | Path, *, rtl: Sequence[str | 
         os.umask(umask)
         os.chmod(tmp, 0o777 & ~umask)
         config = _generate(tmp, spec, pm, rtl_files, reference, bench, dut_params, seed, samples,
-                           settings.seed if seed is None else seed, gap_percent, stall_percent)
+                           settings.seed if seed is None else seed, gap_percent, stall_percent, sink)
         _prepare_target(out, force)
         _move_into_place(tmp, out)
     except BaseException:
@@ -467,7 +482,7 @@ def write_testbench(spec: BlockSpec, output: str | Path, *, rtl: Sequence[str | 
 
 def _generate(folder: Path, spec: BlockSpec, pm: PortMap, rtl_files: list[Path], reference: bool,
               bench: dict, dut_params: dict, seed: int | None, samples: int | None, bench_seed: int,
-              gap_percent: int, stall_percent: int) -> dict:
+              gap_percent: int, stall_percent: int, sink: str) -> dict:
     manifest = _write_vectors(spec, folder / "vectors", seed, samples)
     total = int(manifest["totals"]["samples"])
     config_stub = {"stimulus": "vectors/stimulus.hex", "input_bits": spec.input_bits}
@@ -517,6 +532,7 @@ def _generate(folder: Path, spec: BlockSpec, pm: PortMap, rtl_files: list[Path],
         "pipeline_stages": spec.pipeline_stages,
         "gap_percent": gap_percent,
         "stall_percent": stall_percent,
+        "sink": sink,
         "seed": bench_seed,
         "port_map": pm.to_dict(),
         "rtl": rtl,
@@ -538,6 +554,7 @@ def _makefile(config: dict) -> str:
     python = sys.executable if sys.executable and _SAFE_PATH.fullmatch(sys.executable) else "python3"
     return render("Makefile.tmpl", version=tool_version(), python=python, gap_percent=config["gap_percent"],
                   stall_percent=config["stall_percent"], seed=config["seed"], words=config["words"],
+                  sink=config["sink"],
                   verilog_sources=" ".join(m["sources"]), verilog_parameters=params,
                   stimulus=config["stimulus"], expected=config["expected"])
 
@@ -554,6 +571,8 @@ def _readme(spec: BlockSpec, pm: PortMap, config: dict, reference: bool) -> str:
         spec_name=Path(spec.source).name if spec.source else "a block spec", block=block,
         words=config["words"], total_words=config["total_words"], frames=config["frames"],
         gap_percent=config["gap_percent"], stall_percent=config["stall_percent"], seed=config["seed"],
+        sink=("waits for TVALID before raising TREADY" if config["sink"] == "waits-for-valid"
+              else "raises TREADY without looking at TVALID"),
         rtl_note=rtl_note, tb_note="" if pm.is_reference else " (instantiating the adapter)",
         clock=pm.clock, reset=pm.reset, reset_level="high" if pm.reset_active_high else "low",
         in_ports=", ".join(sig[r] for r in ("in_data", "in_valid", "in_ready", "in_last")),

@@ -13,6 +13,9 @@ backpressure, and compares every output word. Sources beside the checks:
 - ARM IHI 0051A (AXI4-Stream), 2.2.1: a transfer happens when TVALID and
   TREADY are both high; once TVALID is high it stays high, with TDATA
   unchanged, until the transfer. The handshake test breaks this on purpose.
+  The same section lets a sink wait for TVALID before raising TREADY and
+  forbids a source to wait for TREADY before raising TVALID: some runs use a
+  sink that waits, and a module whose TVALID waits for TREADY must fail them.
 - Geometric waiting (elementary probability): with a fraction ``p`` of cycles
   without an offered word, a word waits ``1 / (1 - p)`` cycles on average.
 
@@ -38,6 +41,7 @@ from hdl_tb.core_params import CORE_SOURCES
 from hdl_tb.cosim import cosim, run_folder
 from hdl_tb.tb_generator import write_testbench
 from refmodel.block_spec import spec_from_dict
+from refmodel.errors import SpecError
 from refmodel.fixed_arith import scale_product
 from vectors.vector_set import write_vector_set
 
@@ -85,6 +89,15 @@ MATRIX = {
 }
 
 
+# Matrix entries whose runs use a sink that waits for TVALID (ARM IHI 0051A 2.2.1).
+WAITING_SINK = {"so-r6-g3-16bit-floor-truncated-csd-skip", "ca-r7-g1-32bit-halfeven-wrap-zeropad",
+                "go-r5-g1-8bit-floor-wrap-skip"}
+
+
+def _sink(name: str) -> str:
+    return "waits-for-valid" if name in WAITING_SINK else "independent"
+
+
 def _vectors(frame_length: int, window: int) -> dict:
     return {"seed": 4242, "scenario_frames": 2, "random_frames": 6, "random_length_max": max(window, frame_length)}
 
@@ -124,8 +137,10 @@ def test_matrix_is_what_the_docstring_says():
 @pytest.mark.parametrize("name", sorted(MATRIX))
 def test_bulk_matrix(tmp_path, name):
     gaps, stalls = MATRIX[name][4], MATRIX[name][5]
-    r = cosim(_spec(name), mode="bulk", gap_percent=gaps, stall_percent=stalls, folder=tmp_path / "b")
+    r = cosim(_spec(name), mode="bulk", gap_percent=gaps, stall_percent=stalls, sink=_sink(name),
+              folder=tmp_path / "b")
     assert r.passed, f"{r.problems}"
+    assert r.details["sink"] == _sink(name)
     assert r.words_compared == r.words_expected > 0
     assert r.mismatches == r.missing_words == r.extra_words == 0
     assert r.results_xml is not None and r.results_xml.is_file()
@@ -142,16 +157,31 @@ def test_bulk_100k_samples(tmp_path):
 def test_interactive_small(tmp_path, name):
     gaps, stalls = MATRIX[name][4], MATRIX[name][5]
     r = cosim(_spec(name), mode="interactive", samples=1500, gap_percent=gaps, stall_percent=stalls,
-              folder=tmp_path / "b")
+              sink=_sink(name), folder=tmp_path / "b")
     assert r.passed, f"{r.problems}"
+    assert r.details["sink"] == _sink(name)
     assert r.words_compared == r.words_expected >= 1500
     assert r.details["handshake_errors"] == 0
 
 
+def test_matrix_uses_both_kinds_of_sink():
+    # ARM IHI 0051A 2.2.1 allows a sink either; both must be in the regular runs.
+    assert {_sink(n) for n in MATRIX} == {"independent", "waits-for-valid"}
+    assert {_sink(n) for n in ("so-r8-g0-4bit-halfeven-saturate-onesided", "go-r5-g1-8bit-floor-wrap-skip")} == {
+        "independent", "waits-for-valid"}
+
+
 def test_verilog_mode(tmp_path):
-    r = cosim(_spec("ca-r3-g2-12bit-halfeven-wrap-onesided-ge"), mode="verilog", folder=tmp_path / "b")
+    folder = tmp_path / "b"
+    r = cosim(_spec("ca-r3-g2-12bit-halfeven-wrap-onesided-ge"), mode="verilog", folder=folder)
     assert r.passed, f"{r.problems}"
     assert r.words_compared == r.words_expected
+    assert r.details["sink"] == "independent"
+    waiting = run_folder(folder, "verilog", sink="waits-for-valid")
+    assert waiting.passed and waiting.details["sink"] == "waits-for-valid"
+    with pytest.raises(SpecError) as err:
+        run_folder(folder, "verilog", sink="lazy")
+    assert err.value.field == "--sink"
 
 
 def test_gaps_really_slow_the_input(tmp_path):
@@ -318,6 +348,60 @@ def test_lost_words_end_in_a_timeout(tmp_path, user_rtl, mode):
     assert any("never arrived" in p for p in r.problems) and any("timed out" in p for p in r.problems)
 
 
+def _core_copy(folder: Path, find: str, replace: str) -> Path:
+    """A copy of the reference core with one change, under its own name (so the port map stays the default)."""
+    core = CORE_SOURCES[0].read_text(encoding="ascii")
+    assert core.count(find) == 1
+    folder.mkdir(parents=True, exist_ok=True)
+    path = folder / CORE_SOURCES[0].name
+    path.write_text(core.replace(find, replace), encoding="ascii")
+    return path
+
+
+@pytest.mark.parametrize("mode", ["bulk", "interactive"])
+def test_waiting_sink_catches_a_tvalid_that_waits_for_tready(tmp_path, mode):
+    # ARM IHI 0051A 2.2.1: a source must not wait for TREADY before asserting TVALID. Such a module
+    # offers nothing to a sink that waits for TVALID; the watchdog must end the run, not the timeout.
+    core = _core_copy(tmp_path / "rtl", "assign m_axis_tvalid = out_valid;",
+                      "assign m_axis_tvalid = out_valid & m_axis_tready;")
+    r = cosim(_spec("ca-r1-g0-1bit-floor-saturate-zeropad"), rtl=[core], mode=mode, samples=200,
+              sink="waits-for-valid", folder=tmp_path / "b")
+    assert not r.passed
+    assert r.words_compared == 0 and r.missing_words == r.words_expected
+    assert r.details["deadlocked"] and not r.details["timed_out"]
+    assert any(p.startswith("output never became valid while the sink waited for TVALID") for p in r.problems)
+
+
+# Spliced into a copy of the core: TREADY high in a cycle needs a word seen waiting (TVALID high,
+# TREADY low) in the cycle before; the first transfer is announced so that an empty log cannot pass.
+_PROBE = """
+    reg probe_seen_reg = 1'b0;
+    reg probe_said_reg = 1'b0;
+    always @(posedge clk) begin
+        if (!rst && m_axis_tready === 1'b1 && !probe_seen_reg)
+            $display("PROBE: m_axis_tready high with no word seen waiting in the cycle before");
+        if (m_axis_tvalid === 1'b1 && m_axis_tready === 1'b1 && !probe_said_reg)
+            $display("PROBE: first transfer");
+        probe_said_reg <= probe_said_reg || (m_axis_tvalid === 1'b1 && m_axis_tready === 1'b1);
+        probe_seen_reg <= m_axis_tvalid === 1'b1 && m_axis_tready !== 1'b1;
+    end
+
+endmodule
+"""
+
+
+@pytest.mark.parametrize("mode", ["bulk", "interactive"])
+def test_waiting_sink_raises_tready_only_for_a_word_it_has_seen(tmp_path, mode):
+    # ARM IHI 0051A 2.2.1: the sink may wait for TVALID; this one must never raise TREADY before it.
+    core = _core_copy(tmp_path / "rtl", "\nendmodule\n", _PROBE)
+    r = cosim(_spec("so-r2-g1-16bit-halfup-wrap-skip-ge"), rtl=[core], mode=mode, samples=300, stall_percent=40,
+              sink="waits-for-valid", folder=tmp_path / "b")
+    assert r.passed, f"{r.problems}"
+    log = r.log_file.read_text(errors="replace")
+    assert "PROBE: first transfer" in log
+    assert "PROBE: m_axis_tready high" not in log
+
+
 @pytest.mark.parametrize("mode", ["bulk", "interactive", "verilog"])
 def test_reference_core_with_an_active_low_reset(tmp_path, mode):
     data = _spec("so-r2-g1-16bit-halfup-wrap-skip-ge").to_dict()
@@ -356,9 +440,10 @@ def _write_spec(tmp_path: Path, spec) -> Path:
 def test_cli_pass_and_mismatch_exit_codes(tmp_path, user_rtl, capsys):
     rtl = [str(f) for f in user_rtl]
     good = _write_spec(tmp_path, _user_spec())
-    assert main(["cosim", str(good), "--rtl", *rtl, "--samples", "400"]) == 0
+    assert main(["cosim", str(good), "--rtl", *rtl, "--samples", "400", "--sink", "waits-for-valid"]) == 0
     out = capsys.readouterr().out
     assert out.startswith("PASS") and "words compared" in out and "samples/s" in out
+    assert "output sink      waits-for-valid" in out
     bad_dir = tmp_path / "bad"
     bad_dir.mkdir()
     bad = _write_spec(bad_dir, _user_spec({"CORRUPT_CUT": _common_cut(tmp_path, 1200)}))
@@ -420,10 +505,11 @@ def test_cli_bad_spec_and_options(tmp_path, capsys):
     _one_line_error(capsys, ["cosim", str(path), "--samples", "0"], "--samples")
     _one_line_error(capsys, ["cosim", str(path), "--stalls", "99"], "--stalls")
     _one_line_error(capsys, ["cosim", str(tmp_path / "missing.toml")], "SPEC")
-    with pytest.raises(SystemExit) as stop:  # argparse usage errors: one line, exit code 2 (cfarvec/cli.py)
-        main(["cosim", str(path), "--mode", "fastest"])
-    assert stop.value.code == 2
-    assert capsys.readouterr().err.count("\n") == 1
+    for bad_choice in (["--mode", "fastest"], ["--sink", "lazy"]):
+        with pytest.raises(SystemExit) as stop:  # argparse usage errors: one line, exit code 2 (cfarvec/cli.py)
+            main(["cosim", str(path), *bad_choice])
+        assert stop.value.code == 2
+        assert capsys.readouterr().err.count("\n") == 1
 
 
 # ---------------------------------------------------------------- long runs
@@ -432,7 +518,7 @@ def test_cli_bad_spec_and_options(tmp_path, capsys):
 @pytest.mark.skipif(not LONG, reason="long co-simulation; set CFARVEC_LONG=1")
 @pytest.mark.parametrize("name", sorted(MATRIX))
 def test_long_interactive_matrix(tmp_path, name):
-    r = cosim(_spec(name), mode="interactive", samples=20_000, folder=tmp_path / "b")
+    r = cosim(_spec(name), mode="interactive", samples=20_000, sink=_sink(name), folder=tmp_path / "b")
     assert r.passed, f"{r.problems}"
 
 
@@ -440,5 +526,5 @@ def test_long_interactive_matrix(tmp_path, name):
 @pytest.mark.skipif(not LONG, reason="long co-simulation; set CFARVEC_LONG=1")
 @pytest.mark.parametrize("name", sorted(MATRIX))
 def test_long_bulk_million(tmp_path, name):
-    r = cosim(_spec(name), mode="bulk", samples=1_000_000, folder=tmp_path / "b")
+    r = cosim(_spec(name), mode="bulk", samples=1_000_000, sink=_sink(name), folder=tmp_path / "b")
     assert r.passed, f"{r.problems}"

@@ -462,6 +462,7 @@ def test_long_random_configurations(tmp_path, seed):
     narrow = max(1, min(int(full).bit_length() - int(rng.integers(0, 4)), 61 - probe.input_bits))
     spec = _spec(kind, r, g, threshold_bits=narrow, threshold_frac_bits=f_t, **common, **fixed)
     bench = dict(gap_percent=int(rng.integers(0, 50)), stall_percent=int(rng.integers(0, 50)),
-                 seed=int(rng.integers(1, 1 << 30)), generation=str(rng.choice(["2005", "2012"])))
+                 seed=int(rng.integers(1, 1 << 30)), generation=str(rng.choice(["2005", "2012"])),
+                 sink=str(rng.choice(["independent", "waits-for-valid"])))
     result, words, _ = _run_config(tmp_path, spec, bench, 20000, seed=seed)
     assert result.passed, f"{spec}\n{result.first_mismatch}"

@@ -4,7 +4,9 @@ Sources beside each check: ``docs/bit-true.md`` sections 1 and 8 (stimulus
 and output word layout), IEEE Std 1364-2005 section 17.2.9 (``$readmemh``
 text: one hex word per line), the JUnit XML result format as written by
 cocotb's runner (``testsuite``/``testcase``/``failure`` elements),
-``hdl_tb/rtl/cfar_stream_tb.v`` (the pure-Verilog bench the folder reuses).
+``hdl_tb/rtl/cfar_stream_tb.v`` (the pure-Verilog bench the folder reuses),
+ARM IHI 0051A section 2.2.1 (a sink may wait for TVALID before raising
+TREADY: the folder's sink setting).
 The block specs are invented scenarios.
 """
 
@@ -93,6 +95,7 @@ def test_config_matches_the_vector_set(folder):
     assert cfg["port_map"]["module"] == "cfar_stream"
     assert cfg["modes"]["interactive"]["toplevel"] == "cfar_stream"
     assert cfg["modes"]["interactive"]["parameters"] == core_parameters(_spec())
+    assert cfg["sink"] == "independent"
 
 
 def test_config_spec_rebuilds_the_manifests_constant(tmp_path):
@@ -198,6 +201,7 @@ def test_a_failure_leaves_nothing_behind(tmp_path, monkeypatch):
     (dict(samples=0), "--samples"),
     (dict(rtl=["/no/such/file.v"]), "--rtl"),
     (dict(top="module"), "--top"),
+    (dict(sink="eager"), "--sink"),
 ])
 def test_bad_options_write_nothing(tmp_path, kwargs, field):
     out = tmp_path / "b"
@@ -299,7 +303,8 @@ def _toml(data: dict) -> str:
 def test_generated_pytest_runner_passes_and_writes_junit(tmp_path):
     out = tmp_path / "b"
     write_testbench(_spec(), out, samples=400, gap_percent=25, stall_percent=35)
-    env = {k: v for k, v in os.environ.items() if not k.startswith(("PYTEST_", "COCOTB_"))}
+    env = {k: v for k, v in os.environ.items() if not k.startswith(("PYTEST_", "COCOTB_", "CFARVEC_"))}
+    env["CFARVEC_SINK"] = "waits-for-valid"  # the runner's override of the folder's sink
     proc = subprocess.run([sys.executable, "-m", "pytest", "-q", "-p", "no:cacheprovider"], cwd=out, env=env,
                           capture_output=True, text=True, timeout=600)
     assert proc.returncode == 0, proc.stdout[-3000:] + proc.stderr[-2000:]
@@ -312,6 +317,7 @@ def test_generated_pytest_runner_passes_and_writes_junit(tmp_path):
         assert len(cases) == 1 and not list(suite.iter("failure"))
         summary = json.loads((p.parent / "cfarvec_summary.json").read_text())
         assert summary["passed"] and summary["words_compared"] == read_config(out)["words"]
+        assert summary["sink"] == "waits-for-valid"
 
 
 @needs_iverilog
@@ -327,3 +333,16 @@ def test_generated_makefile_runs_the_benches(tmp_path):
     assert f"PASS {words}" in proc.stdout and "1 passed" in proc.stdout
     received = _hex_words(out / "sim_build" / "verilog" / "received.hex")
     assert received == _hex_words(out / "vectors" / "expected.hex")[:words]
+    assert "SINK_WAITS_FOR_VALID=0" in proc.stdout
+    proc = subprocess.run(["make", "-s", "verilog", "SINK=waits-for-valid"], cwd=out, capture_output=True, text=True,
+                          timeout=300, env=env)
+    assert proc.returncode == 0, proc.stdout[-2000:] + proc.stderr[-2000:]
+    assert "SINK_WAITS_FOR_VALID=1" in proc.stdout and f"PASS {words}" in proc.stdout
+
+
+def test_sink_setting_reaches_the_folder(tmp_path):
+    out = tmp_path / "b"
+    cfg = write_testbench(_spec(), out, sink="waits-for-valid", check_ports=False).config
+    assert cfg["sink"] == read_config(out)["sink"] == "waits-for-valid"
+    assert "SINK          ?= waits-for-valid" in (out / "Makefile").read_text()
+    assert "waits for TVALID before raising TREADY" in (out / "README.md").read_text()
