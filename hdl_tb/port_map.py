@@ -144,8 +144,8 @@ def check_identifier(field_name: str, name: Any) -> str:
     ------
     SpecError
         When ``name`` is not a string, breaks the identifier rule of IEEE
-        Std 1364-2005 section 3.7 (escaped identifiers such as ``\\bus+a``
-        included), is longer than 1024 characters, or is a keyword of IEEE
+        Std 1364-2005 section 3.7 (escaped identifiers, section 3.7.1, such
+        as ``\\bus+a`` are refused too), is longer than 1024 characters, or is a keyword of IEEE
         Std 1364-2005 or IEEE Std 1800-2012.
     """
     require(isinstance(name, str), field_name, f"got {name!r}", _IDENT_ALLOWED)

@@ -92,33 +92,36 @@ def naf_weight(x: np.ndarray) -> np.ndarray:
     return np.bitwise_count(c.astype(np.uint64)).astype(np.int64)
 
 
+def _signed_digit_candidates(t: float, digits: int) -> set[int]:
+    """Integers of at most ``digits`` signed power-of-two terms reachable near ``t``.
+
+    Each level takes the power of two just below or just above ``|t|`` (or
+    stops), then recurses on the remainder: at most ``3**digits`` leaves.
+    """
+    if digits == 0 or abs(t) < 0.5:
+        return {0}
+    sign = 1 if t > 0 else -1
+    lo = max(0, int(np.floor(np.log2(abs(t)))))
+    out = {0}
+    for p in (lo, lo + 1):
+        head = sign * (1 << p)
+        out.update(head + rest for rest in _signed_digit_candidates(t - head, digits - 1))
+    return out
+
+
 def best_csd_constant(target: float, digits: int) -> int:
     """The integer nearest ``target`` with at most ``digits`` non-zero signed digits.
 
-    Ties go to the smaller integer. The search is exact: since the NAF has
-    the minimum number of non-zero digits [1]_, an integer is representable
-    with ``digits`` signed power-of-two terms exactly when its NAF weight
-    is at most ``digits`` [2]_; the scan widens around ``target`` until such
-    an integer is found on both sides.
+    Ties go to the smaller integer. An integer is a sum of ``digits`` signed
+    powers of two exactly when its NAF weight is at most ``digits`` [1]_, [2]_.
+    The candidates come from a search that, digit by digit, takes the power of
+    two just below or just above what is left to approximate; the tests check
+    the result against a brute-force scan of every integer by NAF weight.
     """
     if target <= 0:
         return 0
-    centre = int(np.floor(target))
-    span = 64
-    while True:
-        lo = max(0, centre - span)
-        cand = np.arange(lo, centre + span + 2, dtype=np.int64)
-        ok = cand[naf_weight(cand) <= digits]
-        below = ok[ok <= target]
-        above = ok[ok > target]
-        if (below.size or lo == 0) and above.size:
-            best = None
-            for a in ([int(below.max())] if below.size else []) + [int(above.min())]:
-                err = abs(a - target)
-                if best is None or err < best[0] or (err == best[0] and a < best[1]):
-                    best = (err, a)
-            return best[1]
-        span *= 4
+    cands = [c for c in _signed_digit_candidates(target, digits) if c >= 0]
+    return min(cands, key=lambda a: (abs(a - target), a))
 
 
 def quantise_constant(target: float, digits: int = 0) -> int:
