@@ -9,9 +9,6 @@ References
 .. [1] G. W. Reitwiesner, "Binary arithmetic", Advances in Computers 1,
    1960, pp. 231-308 (the non-adjacent form has the fewest non-zero digits
    of all signed-digit representations).
-.. [2] H. Prodinger, "On binary representations of integers with digits
-   -1, 0, 1", Integers 0, 2000, A8 (non-zero digits of the NAF of x are
-   the set bits of (x >> 1) ^ (x + (x >> 1))).
 """
 
 from __future__ import annotations
@@ -85,13 +82,6 @@ def naf_digits(a: int) -> list[tuple[int, int]]:
     return digits[::-1]
 
 
-def naf_weight(x: np.ndarray) -> np.ndarray:
-    """Number of non-zero NAF digits of each non-negative int64 in ``x`` [2]_."""
-    x = np.asarray(x, dtype=np.int64)
-    c = (x >> 1) ^ (x + (x >> 1))
-    return np.bitwise_count(c.astype(np.uint64)).astype(np.int64)
-
-
 def _signed_digit_candidates(t: float, digits: int) -> set[int]:
     """Integers of at most ``digits`` signed power-of-two terms reachable near ``t``.
 
@@ -113,7 +103,7 @@ def best_csd_constant(target: float, digits: int) -> int:
     """The integer nearest ``target`` with at most ``digits`` non-zero signed digits.
 
     Ties go to the smaller integer. An integer is a sum of ``digits`` signed
-    powers of two exactly when its NAF weight is at most ``digits`` [1]_, [2]_.
+    powers of two exactly when its NAF weight is at most ``digits`` [1]_.
     The candidates come from a search that, digit by digit, takes the power of
     two just below or just above what is left to approximate; the tests check
     the result against a brute-force scan of every integer by NAF weight.
