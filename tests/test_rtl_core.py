@@ -20,7 +20,6 @@ Long runs (more configurations, longer streams) need ``CFARVEC_LONG=1``.
 
 from __future__ import annotations
 
-import importlib
 import os
 import shutil
 from pathlib import Path
@@ -36,6 +35,7 @@ from refmodel.word_format import output_field_offsets, pack_input
 pytestmark = pytest.mark.skipif(shutil.which("iverilog") is None or shutil.which("vvp") is None,
                                 reason="Icarus Verilog (iverilog, vvp) is not installed; run `make tools`")
 
+from refmodel.pipeline_struct import run_structural  # noqa: E402
 from hdl_tb.core_params import BENCH_SOURCE, CORE_SOURCES, core_parameters  # noqa: E402
 from hdl_tb.verilog_bench import BenchCompileError, compile_bench, count_hex_words, run_bench  # noqa: E402
 
@@ -43,14 +43,8 @@ LONG = bool(os.environ.get("CFARVEC_LONG"))
 
 
 def _model():
-    """The project's bit-accurate model: ``(name, function(spec, samples, last) -> PipelineOutput)``."""
-    for module, name in (("refmodel.pipeline_struct", "run_structural"), ("refmodel.pipeline_structural", "run_structural"),
-                         ("refmodel.pipeline_fast", "run_fast")):
-        try:
-            return name, getattr(importlib.import_module(module), name)
-        except (ImportError, AttributeError):
-            continue
-    pytest.skip("no bit-accurate model (refmodel.pipeline_struct / pipeline_fast) is available yet")
+    """The project's bit-accurate model (the structural model, the executable docs/bit-true.md)."""
+    return "refmodel.pipeline_struct.run_structural", run_structural
 
 
 def _pack_words(spec, out) -> list[int]:
