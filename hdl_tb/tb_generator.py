@@ -35,12 +35,10 @@ from __future__ import annotations
 import dataclasses
 import json
 import math
-import os
 import re
 import shutil
 import string
 import sys
-import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 from types import MappingProxyType
@@ -50,6 +48,7 @@ import numpy as np
 
 from refmodel.block_spec import BlockSpec
 from refmodel.errors import SpecError, require
+from refmodel.output_folder import staged_folder
 from refmodel.word_format import output_field_offsets
 from vectors.manifest import tool_version
 from vectors.vector_set import vector_settings, write_vector_set
@@ -320,30 +319,6 @@ def whole_frames(stimulus: np.ndarray, input_bits: int, samples: int) -> int:
 # --------------------------------------------------------------------------
 
 
-def _prepare_target(out: Path, force: bool) -> None:
-    if out.exists() or out.is_symlink():
-        require(out.is_dir() and not out.is_symlink(), "--output", f"{str(out)!r} exists and is not a folder",
-                "a new or empty folder, or an existing folder with --force")
-        if any(out.iterdir()):
-            require(force, "--output", f"{str(out)!r} exists and is not empty",
-                    "a new or empty folder, or --force to replace it")
-
-
-def _move_into_place(tmp: Path, out: Path) -> None:
-    if out.exists() and any(out.iterdir()):
-        old = Path(tempfile.mkdtemp(prefix=f".{out.name}.old-", dir=out.parent))
-        os.replace(out, old / "previous")
-        try:
-            os.replace(tmp, out)
-        except BaseException:
-            os.replace(old / "previous", out)
-            shutil.rmtree(old, ignore_errors=True)
-            raise
-        shutil.rmtree(old, ignore_errors=True)
-    else:
-        os.replace(tmp, out)
-
-
 def _check_percent(name: str, value) -> int:
     ok = isinstance(value, int) and not isinstance(value, bool) and 0 <= value <= 95
     require(ok, name, f"got {value!r}", "an integer 0..95")
@@ -459,24 +434,9 @@ def write_testbench(spec: BlockSpec, output: str | Path, *, rtl: Sequence[str | 
             ports_checked = True
 
     out = Path(output).absolute()
-    _prepare_target(out, force)
-    try:
-        out.parent.mkdir(parents=True, exist_ok=True)
-        tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.partial-", dir=out.parent))
-    except OSError as exc:
-        raise SpecError("--output", f"cannot create a folder in {str(out.parent)!r} ({exc.strerror})",
-                        "a path whose parent is, or can be made, a writable folder") from None
-    try:
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o777 & ~umask)
+    with staged_folder(out, force) as tmp:
         config = _generate(tmp, spec, pm, rtl_files, reference, bench, dut_params, seed, samples,
                            settings.seed if seed is None else seed, gap_percent, stall_percent, sink)
-        _prepare_target(out, force)
-        _move_into_place(tmp, out)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
     return BenchFolder(out, MappingProxyType(config), ports_checked)
 
 
