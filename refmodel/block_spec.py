@@ -268,7 +268,14 @@ class BlockSpec:
     # ---- timing ---------------------------------------------------------
     @property
     def drain_cycles(self) -> int:
-        """Idle input cycles after each frame's last sample (``R + G``; circular: see docs)."""
+        """Input cycles refused after each frame's last sample, at full rate.
+
+        ``R + G`` drain zeros for the non-circular policies; under ``circular``
+        the stored frame is replayed through the window, ``L + 2(R + G)``
+        cycles for a frame of ``stream.frame_length`` (``docs/bit-true.md`` section 9).
+        """
+        if self.edge == "circular":
+            return self.frame_length + 2 * self.half_window
         return self.half_window
 
     @property
