@@ -266,7 +266,6 @@ def _run_cocotb(folder: Path, config: Mapping, mode: str, where: Path, words: in
         try:
             runner.build(sources=[folder / s for s in m["sources"]], hdl_toplevel=m["toplevel"],
                          parameters=m["parameters"], build_dir=where, timescale=("1ns", "1ps"), waves=waves,
-                         build_args=[a for root in m.get("roots", []) for a in ("-s", root)],
                          log_file=build_log)
         except RuntimeError:
             text = build_log.read_text(errors="replace") if build_log.is_file() else ""

@@ -13,9 +13,7 @@ Verilog:
     interface, per the port map), ``cfarvec_bulk_top.v`` (Verilog-side bulk
     driver), ``cfar_stream_tb.v`` (the pure-Verilog self-checking testbench,
     instantiating the adapter when the port map is not the reference core's)
-    and ``timescale.f``; the adapter's file also holds
-    ``cfarvec_output_monitor`` (the interactive bench's output handshake
-    watch, elaborated as a second root module beside the module under test);
+    and ``timescale.f``;
 ``cfarvec_cocotb_bench.py``, ``test_cfarvec_cosim.py``
     the cocotb test module (bulk and interactive tests) and its pytest runner;
 ``bench_config.json``, ``Makefile``, ``README.md``
@@ -68,7 +66,6 @@ COCOTB_MODULE = "cfarvec_cocotb_bench"
 PYTEST_FILE = "test_cfarvec_cosim.py"
 ADAPTER_TOP = "cfarvec_port_adapter"
 BULK_TOP = "cfarvec_bulk_top"
-MONITOR_TOP = "cfarvec_output_monitor"
 VERILOG_TOP = "cfar_stream_tb"
 MODES = ("bulk", "interactive", "verilog")
 DEFAULT_GAP_PERCENT = 20
@@ -243,21 +240,6 @@ def adapter_source(pm: PortMap, bench: Mapping[str, int]) -> str:
         last_wire="    wire dut_out_last;" if sig["out_last"] is not None else "",
         parameter_override=override, connections=connections, field_assigns="\n".join(assigns),
     )
-
-
-def monitor_source(pm: PortMap) -> str:
-    """``cfarvec_output_monitor``, the interactive bench's output handshake watch (a second root module).
-
-    It is written into ``cfarvec_port_adapter.v``, after the adapter; the
-    other modes elaborate only their own toplevel (``-s``), so it stays out of
-    them.
-    """
-    sig = pm.signals
-    reset = f"{pm.module}.{pm.reset}"
-    return render("output_monitor.v.tmpl", version=tool_version(), module=pm.module, clock=pm.clock,
-                  out_data_bits=pm.out_data_bits, out_valid=sig["out_valid"], out_ready=sig["out_ready"],
-                  out_data=sig["out_data"],
-                  reset_expr=f"({reset} === 1'b1)" if pm.reset_active_high else f"({reset} !== 1'b1)")
 
 
 def bulk_top_source(bench: Mapping[str, int], max_words: int) -> str:
@@ -475,9 +457,7 @@ def _generate(folder: Path, spec: BlockSpec, pm: PortMap, rtl_files: list[Path],
     bench_dir = folder / "bench"
     bench_dir.mkdir()
     (bench_dir / "timescale.f").write_text("+timescale+1ns/1ps\n", encoding="ascii")
-    # The adapter's file also holds the interactive bench's output monitor (elaborated only there, with -s).
-    (bench_dir / f"{ADAPTER_TOP}.v").write_text(adapter_source(pm, bench) + "\n" + monitor_source(pm),
-                                                encoding="ascii")
+    (bench_dir / f"{ADAPTER_TOP}.v").write_text(adapter_source(pm, bench), encoding="ascii")
     (bench_dir / f"{BULK_TOP}.v").write_text(bulk_top_source(bench, max_words), encoding="ascii")
     direct = pm.is_reference
     (bench_dir / f"{VERILOG_TOP}.v").write_text(verilog_bench_source(not direct), encoding="ascii")
@@ -486,9 +466,8 @@ def _generate(folder: Path, spec: BlockSpec, pm: PortMap, rtl_files: list[Path],
     modes = {
         "bulk": {"toplevel": BULK_TOP, "sources": rtl + adapter + [f"bench/{BULK_TOP}.v"],
                  "parameters": {**bench, "MAX_WORDS": max_words}, "testcase": "bulk_stream"},
-        # The output monitor is a second root module, elaborated beside the module under test.
-        "interactive": {"toplevel": pm.module, "sources": rtl + adapter,
-                        "roots": [MONITOR_TOP], "parameters": dut_params, "testcase": "interactive_stream"},
+        "interactive": {"toplevel": pm.module, "sources": rtl, "parameters": dut_params,
+                        "testcase": "interactive_stream"},
         "verilog": {"toplevel": VERILOG_TOP,
                     "sources": rtl + ([] if direct else adapter) + [f"bench/{VERILOG_TOP}.v"],
                     "parameters": {**bench, "MAX_WORDS": max_words}},
