@@ -1,8 +1,9 @@
 """The ``cfarvec`` command: argument parsing and error reporting only.
 
 Each sub-command lives in its own module ``cfarvec/cmd_<name>.py`` exposing
-``add_parser(subparsers)`` (which sets ``func`` on its parser) and does its
-work through the Python API. Bad input anywhere raises
+``add_parser(subparsers)``, which adds and returns its parser with ``func``
+set to the module's ``run(args) -> exit code``; ``run`` does the work through
+the Python API. Bad input anywhere raises
 :class:`refmodel.errors.SpecError`, printed here as one line with exit code 2.
 """
 
@@ -32,13 +33,7 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"cfarvec {__version__}")
     sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
     for name in COMMANDS:
-        try:
-            mod = importlib.import_module(f"cfarvec.cmd_{name}")
-        except ModuleNotFoundError as exc:
-            if exc.name == f"cfarvec.cmd_{name}":
-                continue  # command not built yet
-            raise
-        mod.add_parser(sub)
+        importlib.import_module(f"cfarvec.cmd_{name}").add_parser(sub)
     return parser
 
 

@@ -21,18 +21,7 @@ difference is printed: file, line, frame, field); 2: DIR is not a set."""
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
-    """Register the ``check`` sub-command.
-
-    Parameters
-    ----------
-    subparsers : argparse._SubParsersAction
-        From :meth:`argparse.ArgumentParser.add_subparsers`.
-
-    Returns
-    -------
-    argparse.ArgumentParser
-        The new sub-parser (``func`` is set to :func:`run`).
-    """
+    """Register the ``check`` sub-command; returns its parser (see :mod:`cfarvec.cli`)."""
     p = subparsers.add_parser("check", help="verify a vector set (hashes, manifest, expected words vs the model)",
                               description=_DESCRIPTION, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("folder", metavar="DIR", help="vector set folder")

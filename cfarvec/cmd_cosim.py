@@ -31,18 +31,7 @@ mismatch; 2: bad input."""
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
-    """Register the ``cosim`` sub-command.
-
-    Parameters
-    ----------
-    subparsers : argparse._SubParsersAction
-        From :meth:`argparse.ArgumentParser.add_subparsers`.
-
-    Returns
-    -------
-    argparse.ArgumentParser
-        The new sub-parser (``func`` is set to :func:`run`).
-    """
+    """Register the ``cosim`` sub-command; returns its parser (see :mod:`cfarvec.cli`)."""
     p = subparsers.add_parser("cosim", help="co-simulate RTL against the bit-accurate model (generate, build, run)",
                               description=_DESCRIPTION, formatter_class=argparse.RawDescriptionHelpFormatter)
     add_bench_options(p)

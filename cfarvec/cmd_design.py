@@ -34,18 +34,7 @@ os = the K-th smallest of the N reference cells."""
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
-    """Register the ``design`` sub-command.
-
-    Parameters
-    ----------
-    subparsers : argparse._SubParsersAction
-        From :meth:`argparse.ArgumentParser.add_subparsers`.
-
-    Returns
-    -------
-    argparse.ArgumentParser
-        The new sub-parser (``func`` is set to :func:`run`).
-    """
+    """Register the ``design`` sub-command; returns its parser (see :mod:`cfarvec.cli`)."""
     p = subparsers.add_parser(
         "design",
         help="threshold factor (alpha) <-> Pfa, Pd and CFAR loss",

@@ -27,18 +27,7 @@ DIR must be new or empty (or use --force); it is written whole or not at all."""
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
-    """Register the ``study`` sub-command.
-
-    Parameters
-    ----------
-    subparsers : argparse._SubParsersAction
-        From :meth:`argparse.ArgumentParser.add_subparsers`.
-
-    Returns
-    -------
-    argparse.ArgumentParser
-        The new sub-parser (``func`` is set to :func:`run`).
-    """
+    """Register the ``study`` sub-command; returns its parser (see :mod:`cfarvec.cli`)."""
     p = subparsers.add_parser(
         "study", help="quantisation-loss study over word widths",
         description=_DESCRIPTION, formatter_class=argparse.RawDescriptionHelpFormatter,

@@ -31,18 +31,7 @@ ROWS = (("LUTs", "luts"), ("flip-flops", "flip_flops"), ("DSP blocks", "dsps"), 
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
-    """Register the ``synth`` sub-command.
-
-    Parameters
-    ----------
-    subparsers : argparse._SubParsersAction
-        From :meth:`argparse.ArgumentParser.add_subparsers`.
-
-    Returns
-    -------
-    argparse.ArgumentParser
-        The new sub-parser (``func`` is set to :func:`run`).
-    """
+    """Register the ``synth`` sub-command; returns its parser (see :mod:`cfarvec.cli`)."""
     p = subparsers.add_parser("synth", help="Yosys cell counts of the reference core for a spec",
                               description=_DESCRIPTION, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("spec", metavar="SPEC", help="block spec (TOML)")

@@ -26,18 +26,7 @@ DIR is written beside itself and renamed into place only when complete."""
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
-    """Register the ``testbench`` sub-command.
-
-    Parameters
-    ----------
-    subparsers : argparse._SubParsersAction
-        From :meth:`argparse.ArgumentParser.add_subparsers`.
-
-    Returns
-    -------
-    argparse.ArgumentParser
-        The new sub-parser (``func`` is set to :func:`run`).
-    """
+    """Register the ``testbench`` sub-command; returns its parser (see :mod:`cfarvec.cli`)."""
     p = subparsers.add_parser("testbench", help="write a cocotb + pure-Verilog co-simulation testbench folder",
                               description=_DESCRIPTION, formatter_class=argparse.RawDescriptionHelpFormatter)
     add_bench_options(p)

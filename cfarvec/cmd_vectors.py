@@ -24,18 +24,7 @@ only when complete. Same spec and seed: byte-identical files."""
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
-    """Register the ``vectors`` sub-command.
-
-    Parameters
-    ----------
-    subparsers : argparse._SubParsersAction
-        From :meth:`argparse.ArgumentParser.add_subparsers`.
-
-    Returns
-    -------
-    argparse.ArgumentParser
-        The new sub-parser (``func`` is set to :func:`run`).
-    """
+    """Register the ``vectors`` sub-command; returns its parser (see :mod:`cfarvec.cli`)."""
     p = subparsers.add_parser("vectors", help="write a golden vector set (stimulus, expected output, manifest)",
                               description=_DESCRIPTION, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("spec", metavar="SPEC", help="block spec (TOML)")
