@@ -31,15 +31,19 @@ BENCH_SOURCE = RTL_DIR / "cfar_stream_tb.v"
 #: Fewest register stages the core can be built with (the output register alone).
 MIN_PIPELINE_STAGES = 1
 
-#: Integer codes of the core's enumerated parameters.
-KIND_CODES = {"ca": 0, "go": 1, "so": 2}
-EDGE_CODES = {"skip": 0, "zero-pad": 1, "one-sided": 2}
+#: Integer codes of the enumerated parameters. Code 3 (os, circular) is passed
+#: only to a user's own core; the reference core stops elaboration on it.
+KIND_CODES = {"ca": 0, "go": 1, "so": 2, "os": 3}
+EDGE_CODES = {"skip": 0, "zero-pad": 1, "one-sided": 2, "circular": 3}
+#: What the reference core implements.
+REFERENCE_KINDS = ("ca", "go", "so")
+REFERENCE_EDGES = ("skip", "zero-pad", "one-sided")
 ROUNDING_CODES = {"floor": 0, "half-up": 1, "half-even": 2}
 OVERFLOW_CODES = {"saturate": 0, "wrap": 1}
 COMPARE_CODES = {">": 0, ">=": 1}
 
 
-def core_parameters(spec: BlockSpec, *, srst_level: int = 1) -> dict[str, int]:
+def core_parameters(spec: BlockSpec, *, srst_level: int = 1, reference_core: bool = True) -> dict[str, int]:
     """The ``cfar_stream`` parameter values that realise ``spec``.
 
     Parameters
@@ -49,6 +53,10 @@ def core_parameters(spec: BlockSpec, *, srst_level: int = 1) -> dict[str, int]:
     srst_level : {1, 0}, optional
         Level of the core's synchronous reset input that resets it (1 =
         active high). Not part of the block spec; the default is active high.
+    reference_core : bool, optional
+        True: refuse what the reference core does not implement. False: the
+        same parameters for a user's own core, ``os`` and ``circular`` included
+        (code 3).
 
     Returns
     -------
@@ -74,12 +82,12 @@ def core_parameters(spec: BlockSpec, *, srst_level: int = 1) -> dict[str, int]:
     4), both passed as integers. ``ALPHA_INT`` is ``spec.alpha_int``, the
     authoritative integer of the manifest.
     """
-    if spec.kind not in KIND_CODES:
+    if reference_core and spec.kind not in REFERENCE_KINDS:
         raise SpecError("detector.kind", f"got {spec.kind!r}: the reference core has no order-statistic (os) "
-                        "datapath", ", ".join(f'"{k}"' for k in KIND_CODES))
-    if spec.edge not in EDGE_CODES:
+                        "datapath", ", ".join(f'"{k}"' for k in REFERENCE_KINDS))
+    if reference_core and spec.edge not in REFERENCE_EDGES:
         raise SpecError("detector.edge", f"got {spec.edge!r}: the reference core has no frame store for the "
-                        "circular policy", ", ".join(f'"{k}"' for k in EDGE_CODES))
+                        "circular policy", ", ".join(f'"{k}"' for k in REFERENCE_EDGES))
     if spec.pipeline_stages < MIN_PIPELINE_STAGES:
         raise SpecError("stream.pipeline_stages", f"got {spec.pipeline_stages}",
                         f"an integer >= {MIN_PIPELINE_STAGES} for the reference core")

@@ -54,8 +54,7 @@ from vectors.manifest import tool_version
 from vectors.vector_set import vector_settings, write_vector_set
 from vectors.writers import parse_fixed
 
-from .core_params import (BENCH_SOURCE, CORE_SOURCES, COMPARE_CODES, EDGE_CODES, KIND_CODES, OVERFLOW_CODES,
-                          ROUNDING_CODES, core_parameters)
+from .core_params import BENCH_SOURCE, CORE_SOURCES, core_parameters
 from .port_map import PortMap, check_against_rtl, port_map_from_spec, verilog_literal
 
 TEMPLATE_DIR = Path(__file__).resolve().parent / "templates"
@@ -74,9 +73,6 @@ DEFAULT_STALL_PERCENT = 30
 #: (ARM IHI 0051A 2.2.1 allows a sink either).
 SINK_MODES = ("independent", "waits-for-valid")
 DEFAULT_SINK = "independent"
-#: Codes of what the reference core lacks; the parameters are still passed to a core of the user's own.
-EXTRA_KIND_CODE = 3
-EXTRA_EDGE_CODE = 3
 
 _PARAMETER_COMMENTS = {
     "INPUT_BITS": "Sample width W_in in bits.",
@@ -134,37 +130,14 @@ class BenchFolder:
 
 
 def bench_parameters(spec: BlockSpec) -> dict[str, int]:
-    """The reference-core parameters for ``spec``, as the testbenches pass them.
+    """The core parameters for ``spec``, as the testbenches pass them.
 
-    Equal to :func:`hdl_tb.core_params.core_parameters` for every spec the
-    reference core implements; for the order-statistic kind and the circular
-    policy, which only a core of the user's own can implement, ``KIND`` and
-    ``EDGE`` take the code 3. ``SRST_LEVEL`` is 1: the benches drive an
-    active-high reset (the adapter converts it to the module's level).
+    :func:`hdl_tb.core_params.core_parameters` without the reference core's
+    refusals, since a core of the user's own may implement the order-statistic
+    kind and the circular policy (code 3). ``SRST_LEVEL`` is 1: the benches
+    drive an active-high reset (the adapter converts it to the module's level).
     """
-    try:
-        return core_parameters(spec)
-    except SpecError as exc:
-        if exc.field not in ("detector.kind", "detector.edge"):
-            raise
-    return {
-        "INPUT_BITS": spec.input_bits,
-        "REF_CELLS": spec.ref_per_side,
-        "GUARD_CELLS": spec.guard_per_side,
-        "KIND": KIND_CODES.get(spec.kind, EXTRA_KIND_CODE),
-        "EDGE": EDGE_CODES.get(spec.edge, EXTRA_EDGE_CODE),
-        "SUM_BITS": spec.sum_bits,
-        "ALPHA_INT": int(spec.alpha_int),
-        "DROP_BITS": spec.drop_bits,
-        "THRESHOLD_FRAC_BITS": spec.threshold_frac_bits,
-        "THRESHOLD_BITS": spec.threshold_bits,
-        "ROUNDING": ROUNDING_CODES[spec.rounding],
-        "OVERFLOW": OVERFLOW_CODES[spec.overflow],
-        "COMPARE_GE": COMPARE_CODES[spec.compare],
-        "TRUNCATE_PARTIALS": int(spec.truncate_partials),
-        "PIPELINE_STAGES": spec.pipeline_stages,
-        "SRST_LEVEL": 1,
-    }
+    return core_parameters(spec, reference_core=False)
 
 
 def module_parameters(pm: PortMap, bench: Mapping[str, int]) -> dict[str, int]:
