@@ -30,7 +30,7 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 from refmodel.block_spec import spec_from_dict  # noqa: E402
-from refmodel.pipeline_fast import FastPipeline, run_fast  # noqa: E402
+from refmodel.fixedpoint.pipeline_fast import FastPipeline, run_fast  # noqa: E402
 
 SPEC = {
     "detector": {"kind": "ca", "ref_cells_per_side": 16, "guard_cells_per_side": 2, "alpha": 5.0},
@@ -74,9 +74,9 @@ def ratio_to_cumsum():
 
 def structural_rate():
     try:
-        from refmodel.pipeline_struct import run_structural
+        from refmodel.fixedpoint.pipeline_struct import run_structural
     except ImportError:
-        print("structural_model_rate: refmodel.pipeline_struct.run_structural is not in this tree; skipped",
+        print("structural_model_rate: refmodel.fixedpoint.pipeline_struct.run_structural is not in this tree; skipped",
               file=sys.stderr)
         return
     spec = spec_from_dict(SPEC)

@@ -29,8 +29,8 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 from refmodel.block_spec import spec_from_dict  # noqa: E402
-from refmodel.exact_pfa import trigger_law  # noqa: E402
-from refmodel.window_trials import CHUNK_TRIALS, run_trials  # noqa: E402
+from refmodel.fixedpoint.exact_pfa import trigger_law  # noqa: E402
+from refmodel.study.window_trials import CHUNK_TRIALS, run_trials  # noqa: E402
 
 SPEC = {
     "detector": {"kind": "ca", "ref_cells_per_side": 16, "guard_cells_per_side": 2, "design_pfa": 1e-8},

@@ -1,7 +1,7 @@
 """``cfarvec study``: what each word width costs in false alarms, detection and SNR.
 
-Parses options, then :mod:`refmodel.quant_study` runs the sweep and
-:mod:`refmodel.study_report` writes the report folder. Method and outputs:
+Parses options, then :mod:`refmodel.study.quant_study` runs the sweep and
+:mod:`refmodel.study.study_report` writes the report folder. Method and outputs:
 ``docs/quantisation-study.md``.
 """
 
@@ -85,8 +85,8 @@ def run(args: argparse.Namespace) -> int:
 
     from refmodel.block_spec import load_spec
     from refmodel.errors import require
-    from refmodel.quant_study import run_study, study_config
-    from refmodel.study_report import write_report
+    from refmodel.study.quant_study import run_study, study_config
+    from refmodel.study.study_report import write_report
 
     spec = load_spec(args.spec)
     cfg = study_config(spec, options_from_args(args))

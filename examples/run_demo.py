@@ -26,8 +26,8 @@ import numpy as np  # noqa: E402
 
 from cfarvec.cli import main as cfarvec  # noqa: E402
 from refmodel.block_spec import load_spec  # noqa: E402
-from refmodel.float_cfar import cfar_1d  # noqa: E402
-from refmodel.word_format import unpack_input, unpack_output  # noqa: E402
+from refmodel.floatmodel.float_cfar import cfar_1d  # noqa: E402
+from refmodel.fixedpoint.word_format import unpack_input, unpack_output  # noqa: E402
 from vectors.manifest import read_manifest  # noqa: E402
 from vectors.writers import parse_fixed  # noqa: E402
 

@@ -58,7 +58,8 @@ from typing import Any, Mapping, Sequence
 
 from refmodel.block_spec import BlockSpec
 from refmodel.errors import SpecError, require
-from refmodel.word_format import output_field_offsets
+from refmodel.spec_fields import integer
+from refmodel.fixedpoint.word_format import output_field_offsets
 
 #: Top module of the reference core.
 REFERENCE_MODULE = "cfar_stream"
@@ -247,13 +248,6 @@ class PortMap:
         }
 
 
-def _int_value(field_name: str, value: Any, lo: int, hi: int) -> int:
-    allowed = f"an integer {lo}..{hi}"
-    require(isinstance(value, int) and not isinstance(value, bool), field_name, f"got {value!r}", allowed)
-    require(lo <= value <= hi, field_name, f"got {value}", allowed)
-    return value
-
-
 def port_map_from_spec(spec: BlockSpec, *, top: str | None = None) -> PortMap:
     """Validate the spec's ``[ports]`` table and resolve its defaults.
 
@@ -319,7 +313,7 @@ def port_map_from_spec(spec: BlockSpec, *, top: str | None = None) -> PortMap:
         check_identifier(f"ports.parameters.{name}", name)
         require(not (core and name in CORE_PARAMETER_NAMES), f"ports.parameters.{name}",
                 "is already given by core_parameters = true", "another name, or core_parameters = false")
-        params[name] = _int_value(f"ports.parameters.{name}", value, -(2**31), 2**31 - 1)
+        params[name] = integer(f"ports.parameters.{name}", value, -(2**31), 2**31 - 1)
 
     standard = output_field_offsets(spec)
     fields_raw = raw.get("out_fields", {})
@@ -331,11 +325,11 @@ def port_map_from_spec(spec: BlockSpec, *, top: str | None = None) -> PortMap:
     for name in OUTPUT_FIELDS:
         lsb, width = standard[name]
         if name in fields_raw:
-            lsb = _int_value(f"ports.out_fields.{name}", fields_raw[name], 0, MAX_OUT_DATA_BITS - 1)
+            lsb = integer(f"ports.out_fields.{name}", fields_raw[name], 0, MAX_OUT_DATA_BITS - 1)
         out_fields[name] = (lsb, width)
     span = max(lsb + width for lsb, width in out_fields.values())
     bits = raw.get("out_data_bits", span)
-    bits = _int_value("ports.out_data_bits", bits, 1, MAX_OUT_DATA_BITS)
+    bits = integer("ports.out_data_bits", bits, 1, MAX_OUT_DATA_BITS)
     for name, (lsb, width) in out_fields.items():
         require(lsb + width <= bits, f"ports.out_fields.{name}",
                 f"bits {lsb + width - 1}..{lsb} do not fit the {bits}-bit out_data", f"LSB 0..{bits - width}")

@@ -49,7 +49,7 @@ import numpy as np
 from refmodel.block_spec import BlockSpec
 from refmodel.errors import SpecError, require
 from refmodel.output_folder import staged_folder
-from refmodel.word_format import output_field_offsets
+from refmodel.fixedpoint.word_format import output_field_offsets
 from vectors.manifest import tool_version
 from vectors.vector_set import vector_settings, write_vector_set
 from vectors.writers import parse_fixed

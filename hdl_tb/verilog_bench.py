@@ -222,8 +222,8 @@ def run_bench(spec: BlockSpec | Mapping[str, int], folder: str | Path, *,
         Folder holding the two hex files.
     stimulus, expected : str, optional
         File names inside ``folder`` (stimulus words as
-        :func:`refmodel.word_format.pack_input`, expected words as
-        :func:`refmodel.word_format.pack_output`, one hex word per line).
+        :func:`refmodel.fixedpoint.word_format.pack_input`, expected words as
+        :func:`refmodel.fixedpoint.word_format.pack_output`, one hex word per line).
     received : path, optional
         Where the bench writes the received words (default:
         ``received.hex`` in the compiled image's folder, overwritten by the

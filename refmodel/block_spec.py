@@ -23,7 +23,8 @@ from types import MappingProxyType
 from typing import Any, Mapping
 
 from .errors import SpecError, require
-from .fixed_arith import (OVERFLOW_MODES, ROUNDING_MODES, apply_overflow, naf_digits, quantise_constant,
+from .spec_fields import boolean, choice, choices, integer, number, table
+from .fixedpoint.fixed_arith import (OVERFLOW_MODES, ROUNDING_MODES, apply_overflow, naf_digits, quantise_constant,
                           scale_product)
 
 KINDS = ("ca", "go", "so", "os")
@@ -59,41 +60,6 @@ _STREAM_KEYS = {
     "frame_length": 256,
     "pipeline_stages": 2,
 }
-
-
-def _choices(values) -> str:
-    return ", ".join(f'"{v}"' for v in values)
-
-
-def _int(sec: str, key: str, value: Any, lo: int, hi: int | None = None) -> int:
-    allowed = f"an integer >= {lo}" if hi is None else f"an integer {lo}..{hi}"
-    require(isinstance(value, int) and not isinstance(value, bool), f"{sec}.{key}", f"got {value!r}", allowed)
-    require(value >= lo and (hi is None or value <= hi), f"{sec}.{key}", f"got {value}", allowed)
-    return value
-
-
-def _choice(sec: str, key: str, value: Any, options) -> str:
-    require(value in options, f"{sec}.{key}", f"got {value!r}", _choices(options))
-    return value
-
-
-def _bool(sec: str, key: str, value: Any) -> bool:
-    require(isinstance(value, bool), f"{sec}.{key}", f"got {value!r}", "true or false")
-    return value
-
-
-def _number(sec: str, key: str, value: Any) -> float:
-    ok = isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
-    require(ok, f"{sec}.{key}", f"got {value!r}", "a finite number")
-    return float(value)
-
-
-def _section(data: Mapping, name: str, defaults: Mapping) -> dict:
-    raw = data.get(name, {})
-    require(isinstance(raw, Mapping), name, f"got {type(raw).__name__}", "a table")
-    unknown = sorted(set(raw) - set(defaults))
-    require(not unknown, f"{name}.{unknown[0] if unknown else ''}", "unknown field", _choices(defaults))
-    return {**defaults, **raw}
 
 
 @dataclass(frozen=True)
@@ -381,55 +347,53 @@ def spec_from_dict(data: Mapping[str, Any], source: str | None = None) -> BlockS
     """
     known = ("detector", "fixed", "stream") + DOWNSTREAM_SECTIONS
     for name in data:
-        require(name in known, name, "unknown section", _choices(known))
-    det = _section(data, "detector", _DETECTOR_KEYS)
-    fx = _section(data, "fixed", _FIXED_KEYS)
-    st = _section(data, "stream", _STREAM_KEYS)
+        require(name in known, name, "unknown section", choices(known))
+    det = table(data, "detector", _DETECTOR_KEYS)
+    fx = table(data, "fixed", _FIXED_KEYS)
+    st = table(data, "stream", _STREAM_KEYS)
 
-    kind = _choice("detector", "kind", det["kind"], KINDS)
+    kind = choice("detector.kind", det["kind"], KINDS)
     require(det["ref_cells_per_side"] is not None, "detector.ref_cells_per_side", "missing", "an integer >= 1")
-    r = _int("detector", "ref_cells_per_side", det["ref_cells_per_side"], 1, 4096)
-    g = _int("detector", "guard_cells_per_side", det["guard_cells_per_side"], 0, 4096)
+    r = integer("detector.ref_cells_per_side", det["ref_cells_per_side"], 1, 4096)
+    g = integer("detector.guard_cells_per_side", det["guard_cells_per_side"], 0, 4096)
     rank = det["rank"]
     if kind == "os":
         require(rank is not None, "detector.rank", "missing for kind \"os\"", f"an integer 1..{2 * r}")
-        rank = _int("detector", "rank", rank, 1, 2 * r)
+        rank = integer("detector.rank", rank, 1, 2 * r)
     else:
         require(rank is None, "detector.rank", f"given for kind \"{kind}\"", "only with kind \"os\"")
-    compare = _choice("detector", "compare", det["compare"], COMPARES)
-    edge = _choice("detector", "edge", det["edge"], EDGES)
+    compare = choice("detector.compare", det["compare"], COMPARES)
+    edge = choice("detector.edge", det["edge"], EDGES)
 
     alpha, pfa = det["alpha"], det["design_pfa"]
     require((alpha is None) != (pfa is None), "detector.alpha", "give exactly one of alpha and design_pfa",
             "alpha > 0 or design_pfa in (0, 1)")
     if pfa is not None:
-        pfa = _number("detector", "design_pfa", pfa)
-        require(0.0 < pfa < 1.0, "detector.design_pfa", f"got {pfa}", "a number in (0, 1)")
+        pfa = number("detector.design_pfa", pfa, 0.0, 1.0, open_lo=True, open_hi=True)
         from .threshold_design import alpha_from_pfa
 
         alpha = alpha_from_pfa(kind, 2 * r, pfa, rank)
     else:
-        alpha = _number("detector", "alpha", alpha)
-        require(alpha > 0.0, "detector.alpha", f"got {alpha}", "a finite number > 0")
+        alpha = number("detector.alpha", alpha, 0.0, open_lo=True)
 
-    w_in = _int("fixed", "input_bits", fx["input_bits"], 1, 32)
+    w_in = integer("fixed.input_bits", fx["input_bits"], 1, 32)
     side_bits = (r * ((1 << w_in) - 1)).bit_length()
     sum_bits = fx["sum_bits"]
     if sum_bits is None:
         sum_bits = side_bits
     else:
-        sum_bits = _int("fixed", "sum_bits", sum_bits, 1, 64)
+        sum_bits = integer("fixed.sum_bits", sum_bits, 1, 64)
         require(sum_bits >= side_bits, "fixed.sum_bits",
                 f"got {sum_bits}, but one side's running sum reaches R*(2^input_bits-1) = "
                 f"{r * ((1 << w_in) - 1)}, which needs {side_bits} bits (a narrower modular sum "
                 f"loses the total for good)", f"an integer >= {side_bits}")
-    f_a = _int("fixed", "alpha_frac_bits", fx["alpha_frac_bits"], 0, 40)
-    csd = _int("fixed", "alpha_csd_digits", fx["alpha_csd_digits"], 0, 16)
-    trunc = _bool("fixed", "truncate_partials", fx["truncate_partials"])
-    by_shift = _bool("fixed", "mean_by_shift", fx["mean_by_shift"])
-    f_t = _int("fixed", "threshold_frac_bits", fx["threshold_frac_bits"], 0, 40)
-    rounding = _choice("fixed", "rounding", fx["rounding"], ROUNDING_MODES)
-    overflow = _choice("fixed", "overflow", fx["overflow"], OVERFLOW_MODES)
+    f_a = integer("fixed.alpha_frac_bits", fx["alpha_frac_bits"], 0, 40)
+    csd = integer("fixed.alpha_csd_digits", fx["alpha_csd_digits"], 0, 16)
+    trunc = boolean("fixed.truncate_partials", fx["truncate_partials"])
+    by_shift = boolean("fixed.mean_by_shift", fx["mean_by_shift"])
+    f_t = integer("fixed.threshold_frac_bits", fx["threshold_frac_bits"], 0, 40)
+    rounding = choice("fixed.rounding", fx["rounding"], ROUNDING_MODES)
+    overflow = choice("fixed.overflow", fx["overflow"], OVERFLOW_MODES)
     require(not trunc or rounding == "floor", "fixed.rounding",
             f"got {rounding!r} with truncate_partials = true", '"floor" (truncated partial products floor each term)')
     if by_shift:
@@ -437,8 +401,8 @@ def spec_from_dict(data: Mapping[str, Any], source: str | None = None) -> BlockS
         require(div is not None and div & (div - 1) == 0, "fixed.mean_by_shift",
                 f"true, but the mean divisor is {div if div else 'not used by os'}",
                 "true only when the divisor (2R for ca, R for go/so) is a power of two")
-    frame = _int("stream", "frame_length", st["frame_length"], 2 * r + 2 * g + 1, 1 << 24)
-    stages = _int("stream", "pipeline_stages", st["pipeline_stages"], 1, 16)
+    frame = integer("stream.frame_length", st["frame_length"], 2 * r + 2 * g + 1, 1 << 24)
+    stages = integer("stream.pipeline_stages", st["pipeline_stages"], 1, 16)
 
     sections = {}
     for name in DOWNSTREAM_SECTIONS:
@@ -468,7 +432,7 @@ def spec_from_dict(data: Mapping[str, Any], source: str | None = None) -> BlockS
         t_max = scale_product(spec.statistic_max, spec.alpha_int, spec.drop_bits, rounding)
     auto_t = max(1, int(t_max).bit_length())
     w_t = fx["threshold_bits"]
-    w_t = auto_t if w_t is None else _int("fixed", "threshold_bits", w_t, 1, 62)
+    w_t = auto_t if w_t is None else integer("fixed.threshold_bits", w_t, 1, 62)
     require(w_in + w_t + 3 <= MAX_WORD_BITS, "fixed.threshold_bits",
             f"output word would be input_bits + threshold_bits + 3 = {w_in + w_t + 3} bits",
             f"a threshold width with input_bits + threshold_bits + 3 <= {MAX_WORD_BITS}")

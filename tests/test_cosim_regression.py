@@ -42,7 +42,7 @@ from hdl_tb.cosim import cosim, run_folder
 from hdl_tb.tb_generator import write_testbench
 from refmodel.block_spec import spec_from_dict
 from refmodel.errors import SpecError
-from refmodel.fixed_arith import scale_product
+from refmodel.fixedpoint.fixed_arith import scale_product
 from vectors.vector_set import write_vector_set
 
 pytestmark = pytest.mark.skipif(shutil.which("iverilog") is None or shutil.which("vvp") is None,

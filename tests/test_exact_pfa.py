@@ -30,14 +30,14 @@ from hypothesis import HealthCheck, given, reject, settings
 from hypothesis import strategies as st
 from scipy import stats
 
-from refmodel import exact_pfa as ep
-from refmodel import input_quantiser as iq
+from refmodel.fixedpoint import exact_pfa as ep
+from refmodel.fixedpoint import input_quantiser as iq
 from refmodel import threshold_design as td
-from refmodel import window_trials as wt
+from refmodel.study import window_trials as wt
 from refmodel.block_spec import spec_from_dict
 from refmodel.errors import SpecError
-from refmodel.pipeline_fast import run_fast
-from refmodel.pipeline_struct import run_structural
+from refmodel.fixedpoint.pipeline_fast import run_fast
+from refmodel.fixedpoint.pipeline_struct import run_structural
 from test_block_spec import constant_a, divisor, dropped_bits, t0_of, threshold_word
 
 CONF = 0.999
@@ -387,7 +387,7 @@ def block_specs(draw):
           suppress_health_check=[HealthCheck.too_slow, HealthCheck.filter_too_much])
 @given(spec=block_specs(), seed=st.integers(0, 2**32 - 1))
 def test_kernel_equals_fast_pipeline_word_for_word(spec, seed):
-    """The trial kernel's threshold and decision equal refmodel.pipeline_fast's at every interior CUT."""
+    """The trial kernel's threshold and decision equal refmodel.fixedpoint.pipeline_fast's at every interior CUT."""
     x, last = _frames(spec, np.random.default_rng(seed))
     out = run_fast(spec, x, last)
     idx, cut, ref = wt.interior_windows(spec, x, last)

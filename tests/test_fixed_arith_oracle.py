@@ -30,9 +30,9 @@ from hypothesis import strategies as st
 
 from refmodel.block_spec import spec_from_dict
 from refmodel.errors import SpecError
-from refmodel.fixed_arith import apply_overflow, best_csd_constant, naf_digits, quantise_constant, round_shift, scale_product
-from refmodel.float_cfar import cfar_1d
-from refmodel.pipeline_fast import run_fast
+from refmodel.fixedpoint.fixed_arith import apply_overflow, best_csd_constant, naf_digits, quantise_constant, round_shift, scale_product
+from refmodel.floatmodel.float_cfar import cfar_1d
+from refmodel.fixedpoint.pipeline_fast import run_fast
 
 LONG = os.environ.get("CFARVEC_LONG") == "1"
 HYP = settings(max_examples=2000 if LONG else 100, deadline=None, derandomize=not LONG,

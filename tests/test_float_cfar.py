@@ -1,4 +1,4 @@
-"""Outside checks of the 1D float CFAR model (refmodel.float_cfar).
+"""Outside checks of the 1D float CFAR model (refmodel.floatmodel.float_cfar).
 
 Three kinds of checks, none of which takes its expected values from the code
 under test:
@@ -24,7 +24,7 @@ from hypothesis import strategies as st
 from scipy import integrate, optimize, stats
 
 from refmodel.errors import SpecError
-from refmodel.float_cfar import CfarResult, cfar_1d
+from refmodel.floatmodel.float_cfar import CfarResult, cfar_1d
 
 KINDS = ("ca", "go", "so", "os")
 EDGES = ("skip", "zero-pad", "one-sided", "circular")
@@ -164,7 +164,7 @@ def test_matches_per_cell_reference(kind, edge, compare):
 def test_os_in_small_blocks_matches_per_cell_reference(monkeypatch, edge):
     # The OS model bounds memory by working in blocks of CUT positions; force
     # tiny blocks (and blocks that do not divide L) and compare again.
-    import refmodel.float_cfar as fc
+    import refmodel.floatmodel.float_cfar as fc
 
     rng = np.random.default_rng(99)
     x = rng.integers(0, 5, size=(2, 3, 23)).astype(float)

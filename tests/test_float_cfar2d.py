@@ -1,4 +1,4 @@
-"""Outside checks of the 2D (range-Doppler) float CFAR model (refmodel.float_cfar2d).
+"""Outside checks of the 2D (range-Doppler) float CFAR model (refmodel.floatmodel.float_cfar2d).
 
 As for 1D: a per-cell reference written here as a direct transcription of the
 written definition (docs/float-model.md, "2D detectors"), Monte Carlo
@@ -20,7 +20,7 @@ from hypothesis import strategies as st
 from scipy import integrate, optimize, stats
 
 from refmodel.errors import SpecError
-from refmodel.float_cfar2d import band_offsets, cfar_2d
+from refmodel.floatmodel.float_cfar2d import band_offsets, cfar_2d
 
 KINDS = ("ca", "go", "so", "os")
 RANGE_EDGES = ("skip", "zero-pad", "one-sided", "circular")
@@ -237,7 +237,7 @@ def test_matches_per_cell_reference_random(case):
 def test_os_in_small_blocks_matches_per_cell_reference(monkeypatch, range_edge):
     # The OS model bounds memory by working in blocks of Doppler rows; force
     # tiny blocks (and blocks that do not divide n_doppler) and compare again.
-    import refmodel.float_cfar2d as fc2
+    import refmodel.floatmodel.float_cfar2d as fc2
 
     rng = np.random.default_rng(5)
     geom = (1, 2, 1, 1, 7, 10)

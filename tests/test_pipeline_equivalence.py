@@ -22,9 +22,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from refmodel.block_spec import spec_from_dict
-from refmodel.pipeline_fast import FastPipeline, run_fast
-from refmodel.pipeline_struct import run_structural, simulate
-from refmodel.word_format import PipelineOutput, pack_output, unpack_output
+from refmodel.fixedpoint.pipeline_fast import FastPipeline, run_fast
+from refmodel.fixedpoint.pipeline_struct import run_structural, simulate
+from refmodel.fixedpoint.word_format import PipelineOutput, pack_output, unpack_output
 from test_pipeline_fast import HYP, LONG, assert_words, specs, stream, streams
 
 # A few hundred examples in CI (make test), many more with CFARVEC_LONG=1 (make test-long).

@@ -1,4 +1,4 @@
-"""Outside checks of the fast bit-accurate pipeline model (refmodel.pipeline_fast).
+"""Outside checks of the fast bit-accurate pipeline model (refmodel.fixedpoint.pipeline_fast).
 
 None of these checks takes its expected values from the code under test:
 
@@ -10,7 +10,7 @@ None of these checks takes its expected values from the code under test:
    with the vectorised model on random specs and streams (hypothesis), whole
    and split into chunks at random points;
 3. the fixed-point thresholds against the float golden model
-   (refmodel.float_cfar) within the rounding-error bound, and detection
+   (refmodel.floatmodel.float_cfar) within the rounding-error bound, and detection
    disagreements only where the CUT lies within that bound of the float
    threshold;
 4. bad input.
@@ -25,12 +25,12 @@ import pytest
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
-from refmodel import pipeline_fast
+from refmodel.fixedpoint import pipeline_fast
 from refmodel.block_spec import spec_from_dict
 from refmodel.errors import SpecError
-from refmodel.float_cfar import cfar_1d
-from refmodel.pipeline_fast import FastPipeline, run_fast, statistic
-from refmodel.word_format import FIELDS, PipelineOutput
+from refmodel.floatmodel.float_cfar import cfar_1d
+from refmodel.fixedpoint.pipeline_fast import FastPipeline, run_fast, statistic
+from refmodel.fixedpoint.word_format import FIELDS, PipelineOutput
 from test_block_spec import (constant_a, default_threshold_bits, divisor, dropped_bits, float_allowance, naf,
                              threshold_error_bound)
 

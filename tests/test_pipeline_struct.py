@@ -21,8 +21,8 @@ from hypothesis import strategies as st
 
 from refmodel.block_spec import spec_from_dict
 from refmodel.errors import SpecError
-from refmodel.pipeline_struct import StructuralPipeline, check_stream, run_structural, simulate
-from refmodel.word_format import pack_input
+from refmodel.fixedpoint.pipeline_struct import StructuralPipeline, check_stream, run_structural, simulate
+from refmodel.fixedpoint.word_format import pack_input
 from test_pipeline_fast import HYP, LONG, specs, stream, streams
 
 FEW = settings(HYP, max_examples=600 if LONG else 60)

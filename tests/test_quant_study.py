@@ -17,11 +17,11 @@ import numpy as np
 import pytest
 
 from cfarvec.cli import main
-from refmodel import quant_study as qs
+from refmodel.study import quant_study as qs
 from refmodel import threshold_design as td
 from refmodel.block_spec import load_spec, spec_from_dict
 from refmodel.errors import SpecError
-from refmodel.study_report import FILES, write_report
+from refmodel.study.study_report import FILES, write_report
 
 SPEC_TOML = """\
 # Invented test block (not a real system).
@@ -100,7 +100,7 @@ def test_bad_settings_name_their_option(tmp_path, options, field):
 
 def test_bad_toml_setting_names_study_field(tmp_path):
     spec = load_spec(write_spec(tmp_path, study="alpha_frac_bits = []"))
-    with pytest.raises(SpecError, match="empty sweep") as exc:
+    with pytest.raises(SpecError, match="empty list") as exc:
         qs.study_config(spec)
     assert exc.value.field == "study.alpha_frac_bits"
     spec = load_spec(write_spec(tmp_path, study="widths = [1]"))

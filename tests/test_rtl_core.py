@@ -3,9 +3,9 @@
 Every configuration below builds a stimulus stream in the test (random
 samples, frames of several lengths including one exactly one window long,
 full-scale and all-zero runs), computes the expected words with the project's
-bit-accurate model (``refmodel.pipeline_struct.run_structural``, the
+bit-accurate model (``refmodel.fixedpoint.pipeline_struct.run_structural``, the
 cycle-stepped model that is the executable form of the contract; else
-``refmodel.pipeline_fast.run_fast``), writes both as ``$readmemh``
+``refmodel.fixedpoint.pipeline_fast.run_fast``), writes both as ``$readmemh``
 files (IEEE Std 1364-2005, section 17.2.9) and runs
 ``hdl_tb/rtl/cfar_stream_tb.v`` under Icarus Verilog, which must print PASS.
 The bench itself also checks the AXI4-Stream output handshake (ARM IHI 0051A,
@@ -29,13 +29,13 @@ import pytest
 
 from refmodel.block_spec import spec_from_dict
 from refmodel.errors import SpecError
-from refmodel.fixed_arith import scale_product
-from refmodel.word_format import output_field_offsets, pack_input
+from refmodel.fixedpoint.fixed_arith import scale_product
+from refmodel.fixedpoint.word_format import output_field_offsets, pack_input
 
 pytestmark = pytest.mark.skipif(shutil.which("iverilog") is None or shutil.which("vvp") is None,
                                 reason="Icarus Verilog (iverilog, vvp) is not installed; run `make tools`")
 
-from refmodel.pipeline_struct import run_structural  # noqa: E402
+from refmodel.fixedpoint.pipeline_struct import run_structural  # noqa: E402
 from hdl_tb.core_params import BENCH_SOURCE, CORE_SOURCES, core_parameters  # noqa: E402
 from hdl_tb.verilog_bench import BenchCompileError, compile_bench, count_hex_words, run_bench  # noqa: E402
 
@@ -44,7 +44,7 @@ LONG = bool(os.environ.get("CFARVEC_LONG"))
 
 def _model():
     """The project's bit-accurate model (the structural model, the executable docs/bit-true.md)."""
-    return "refmodel.pipeline_struct.run_structural", run_structural
+    return "refmodel.fixedpoint.pipeline_struct.run_structural", run_structural
 
 
 def _pack_words(spec, out) -> list[int]:

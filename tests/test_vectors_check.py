@@ -3,7 +3,7 @@
 Sources: FIPS 180-4 (SHA-256, through :mod:`hashlib`) for the resealed
 manifests; ``docs/vectors.md`` section "manifest.json" for the seal recipe
 (SHA-256 of the canonical JSON without ``manifest_sha256``); the bit-accurate
-model (:mod:`refmodel.pipeline_fast`) is what the expected words must match.
+model (:mod:`refmodel.fixedpoint.pipeline_fast`) is what the expected words must match.
 The set is the invented scenario of ``tests/data/vectors_small.toml``.
 """
 

@@ -1,8 +1,8 @@
 """Float model against fixed-point words on the scenario frames of a vector set.
 
 The same integer samples go through the float golden model
-(:func:`refmodel.float_cfar.cfar_1d`, with the spec's own alpha) and the
-bit-accurate model (:mod:`refmodel.pipeline_fast`). Where their decisions
+(:func:`refmodel.floatmodel.float_cfar.cfar_1d`, with the spec's own alpha) and the
+bit-accurate model (:mod:`refmodel.fixedpoint.pipeline_fast`). Where their decisions
 differ, the CUT must lie within the threshold error bound of the float
 threshold: the fixed threshold differs from the float one by at most
 ``S |A - A_exact| / 2^F_P + r`` (constant quantisation plus product rounding,
@@ -23,8 +23,8 @@ import numpy as np
 import pytest
 
 from refmodel.block_spec import spec_from_dict
-from refmodel.float_cfar import cfar_1d
-from refmodel.pipeline_fast import run_fast
+from refmodel.floatmodel.float_cfar import cfar_1d
+from refmodel.fixedpoint.pipeline_fast import run_fast
 from vectors.stimulus import Scenario, scenario_blocks
 from vectors.vector_set import vector_settings
 from test_block_spec import divisor, float_allowance, threshold_error_bound

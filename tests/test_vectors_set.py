@@ -23,7 +23,7 @@ from test_vectors_readmem import read_memory_text
 import vectors.vector_set as vector_set
 from refmodel.block_spec import load_spec, spec_from_dict
 from refmodel.errors import SpecError
-from refmodel.pipeline_fast import run_fast
+from refmodel.fixedpoint.pipeline_fast import run_fast
 from vectors.vector_set import write_vector_set
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -185,7 +185,7 @@ def test_existing_folder_needs_force(built, tmp_path):
     ({"seed": -1}, "vectors.seed"),
     ({"scenario_frames": 1.5}, "vectors.scenario_frames"),
     ({"formats": ["hex", "txt"]}, "vectors.formats"),
-    ({"formats": "hex"}, "vectors.formats"),
+    ({"formats": ["hex", 3]}, "vectors.formats"),
     ({"noise_level_lsb": 0}, "vectors.noise_level_lsb"),
     ({"noise_level_lsb": 5000}, "vectors.noise_level_lsb"),
     ({"targets": [{"cell": 64, "snr_db": 10}]}, "vectors.targets[0].cell"),

@@ -13,7 +13,7 @@ finds as a :class:`Finding` (file, line, frame, index in the frame, field):
    least one window long, the stream ends on a last marker); every other
    format carries the same words as the ``hex`` file; the CUT and last
    fields of the expected words mirror the stimulus line for line; and the
-   bit-accurate model (:mod:`refmodel.pipeline_fast`) run on the stimulus
+   bit-accurate model (:mod:`refmodel.fixedpoint.pipeline_fast`) run on the stimulus
    gives every expected word, field for field.
 
 Content checks stop at the first difference, which is reported before any
@@ -33,8 +33,8 @@ import numpy as np
 
 from refmodel.block_spec import BlockSpec, spec_from_dict
 from refmodel.errors import SpecError, require
-from refmodel.pipeline_fast import FastPipeline
-from refmodel.word_format import FIELDS, PipelineOutput, pack_output, unpack_input, unpack_output
+from refmodel.fixedpoint.pipeline_fast import FastPipeline
+from refmodel.fixedpoint.word_format import FIELDS, PipelineOutput, pack_output, unpack_input, unpack_output
 
 from .manifest import DIGEST_KEY, NAME, SET_FORMAT, SET_FORMAT_VERSION, digest, read_manifest, word_layout
 from .vector_set import EXPECTED_COLUMNS, STIMULUS_COLUMNS, FramePosition

@@ -21,7 +21,7 @@ from pathlib import Path
 from typing import Any
 
 from refmodel.block_spec import BlockSpec
-from refmodel.word_format import output_field_offsets
+from refmodel.fixedpoint.word_format import output_field_offsets
 
 NAME = "manifest.json"
 SET_FORMAT = "cfarvec-vector-set"

@@ -42,7 +42,7 @@ from typing import Iterator
 
 import numpy as np
 
-from refmodel.input_quantiser import quantise_power
+from refmodel.fixedpoint.input_quantiser import quantise_power
 
 #: Nominal samples per generated block (whole frames; at least one frame).
 BLOCK_SAMPLES = 1 << 16
@@ -145,7 +145,7 @@ class Scenario:
 def quantise(power: np.ndarray, input_bits: int) -> np.ndarray:
     """Input words from powers in LSB units, by the project's one input quantiser.
 
-    :func:`refmodel.input_quantiser.quantise_power`: ``min(floor(power), 2**input_bits - 1)``
+    :func:`refmodel.fixedpoint.input_quantiser.quantise_power`: ``min(floor(power), 2**input_bits - 1)``
     (an ADC-like truncation), the same law the quantisation study computes with.
     """
     return quantise_power(power, input_bits).astype(np.int64)

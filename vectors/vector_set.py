@@ -1,7 +1,7 @@
 """Build a golden vector set from a block spec: validated settings, streamed, written atomically.
 
 A set is a folder holding the stimulus words, the expected output words the
-bit-accurate model (:mod:`refmodel.pipeline_fast`) gives for them, in one or
+bit-accurate model (:mod:`refmodel.fixedpoint.pipeline_fast`) gives for them, in one or
 more text formats (:mod:`vectors.writers`), and ``manifest.json``
 (:mod:`vectors.manifest`). The ``[vectors]`` section of the block spec says
 which stimulus sources go in; every field is optional (``docs/vectors.md``
@@ -34,8 +34,9 @@ import numpy as np
 from refmodel.block_spec import BlockSpec
 from refmodel.errors import require
 from refmodel.output_folder import staged_folder
-from refmodel.pipeline_fast import FastPipeline
-from refmodel.word_format import PipelineOutput, pack_input, pack_output
+from refmodel.spec_fields import boolean, choice_list, integer, number, table
+from refmodel.fixedpoint.pipeline_fast import FastPipeline
+from refmodel.fixedpoint.word_format import PipelineOutput, pack_input, pack_output
 
 from .corner_cases import corner_case_blocks
 from .manifest import build_manifest, write_manifest
@@ -98,28 +99,9 @@ def default_targets(spec: BlockSpec) -> list[dict]:
     return [t for t in raw if t["cell"] < L]
 
 
-def _int(key: str, value: Any, lo: int, hi: int | None = None) -> int:
-    allowed = f"an integer >= {lo}" if hi is None else f"an integer {lo}..{hi}"
-    require(isinstance(value, int) and not isinstance(value, bool), key, f"got {value!r}", allowed)
-    require(value >= lo and (hi is None or value <= hi), key, f"got {value}", allowed)
-    return value
-
-
-def _num(key: str, value: Any, lo: float | None = None, lo_open: bool = False) -> float:
-    ok = isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
-    allowed = "a finite number" + ("" if lo is None else f" {'>' if lo_open else '>='} {lo}")
-    require(ok, key, f"got {value!r}", allowed)
-    require(lo is None or (value > lo if lo_open else value >= lo), key, f"got {value}", allowed)
-    return float(value)
-
-
 def _formats(key: str, value: Any) -> tuple[str, ...]:
-    allowed = 'a list of "hex", "bin", "csv" ("hex" is always written)'
-    require(isinstance(value, (list, tuple)) and all(isinstance(v, str) for v in value), key, f"got {value!r}",
-            allowed)
-    for v in value:
-        require(v in FORMATS, key, f"got {v!r}", allowed)
-    return tuple(f for f in FORMATS if f == "hex" or f in value)
+    chosen = choice_list(key, value, FORMATS)
+    return tuple(f for f in FORMATS if f == "hex" or f in chosen)
 
 
 def vector_settings(spec: BlockSpec, *, seed: int | None = None, formats=None) -> VectorSettings:
@@ -143,9 +125,8 @@ def vector_settings(spec: BlockSpec, *, seed: int | None = None, formats=None) -
         Naming the first bad field (``vectors.<key>``, ``vectors.targets[i].<key>``,
         ``--seed`` or ``--formats``).
     """
-    raw = spec.sections.get("vectors", {})
-    unknown = sorted(set(raw) - set(_KEYS))
-    require(not unknown, f"vectors.{unknown[0] if unknown else ''}", "unknown field", ", ".join(_KEYS))
+    raw = table(spec.sections, "vectors", dict.fromkeys(_KEYS))
+    raw = {k: v for k, v in raw.items() if v is not None}
     L, W = spec.frame_length, spec.window_length
     full = (1 << spec.input_bits) - 1
 
@@ -153,18 +134,14 @@ def vector_settings(spec: BlockSpec, *, seed: int | None = None, formats=None) -
         return raw.get(key, default)
 
     s = {}
-    s["seed"] = _int("vectors.seed", get("seed", 1), 0, 2**63 - 1)
+    s["seed"] = integer("vectors.seed", get("seed", 1), 0, 2**63 - 1)
     if seed is not None:
-        s["seed"] = _int("--seed", seed, 0, 2**63 - 1)
-    inc = get("include_corner_cases", True)
-    require(isinstance(inc, bool), "vectors.include_corner_cases", f"got {inc!r}", "true or false")
-    s["include_corner_cases"] = inc
-    s["scenario_frames"] = _int("vectors.scenario_frames", get("scenario_frames", 16), 0)
-    s["random_frames"] = _int("vectors.random_frames", get("random_frames", 16), 0)
-    s["noise_level_lsb"] = _num("vectors.noise_level_lsb", get("noise_level_lsb", 2 ** (spec.input_bits // 2)),
-                                0.0, lo_open=True)
-    require(s["noise_level_lsb"] <= full, "vectors.noise_level_lsb", f"got {s['noise_level_lsb']}",
-            f"a number in (0, {full}] (the input's full scale)")
+        s["seed"] = integer("--seed", seed, 0, 2**63 - 1)
+    s["include_corner_cases"] = boolean("vectors.include_corner_cases", get("include_corner_cases", True))
+    s["scenario_frames"] = integer("vectors.scenario_frames", get("scenario_frames", 16), 0)
+    s["random_frames"] = integer("vectors.random_frames", get("random_frames", 16), 0)
+    s["noise_level_lsb"] = number("vectors.noise_level_lsb", get("noise_level_lsb", 2 ** (spec.input_bits // 2)),
+                                  0.0, full, open_lo=True, unit="of LSBs (the input's full scale at most)")
     targets = get("targets", None)
     if targets is None:
         targets = default_targets(spec)
@@ -177,24 +154,22 @@ def vector_settings(spec: BlockSpec, *, seed: int | None = None, formats=None) -
         require(not bad, f"{key}.{bad[0] if bad else ''}", "unknown field", ", ".join(_TARGET_KEYS))
         require("cell" in t and "snr_db" in t, key, "needs cell and snr_db", "a table with cell, snr_db")
         parsed.append(Target(
-            cell=_int(f"{key}.cell", t["cell"], 0, L - 1),
-            snr_db=_num(f"{key}.snr_db", t["snr_db"]),
-            extent=_int(f"{key}.extent", t.get("extent", 1), 1, L),
-            swerling=_int(f"{key}.swerling", t.get("swerling", 0), 0, 1),
+            cell=integer(f"{key}.cell", t["cell"], 0, L - 1),
+            snr_db=number(f"{key}.snr_db", t["snr_db"], hi=200.0, unit="of dB"),
+            extent=integer(f"{key}.extent", t.get("extent", 1), 1, L),
+            swerling=integer(f"{key}.swerling", t.get("swerling", 0), 0, 1),
         ))
-        require(parsed[-1].snr_db <= 200.0, f"{key}.snr_db", f"got {parsed[-1].snr_db}", "a number <= 200")
     s["targets"] = tuple(parsed)
-    s["clutter_start_cell"] = _int("vectors.clutter_start_cell", get("clutter_start_cell", L // 2), 0, L)
-    s["clutter_to_noise_db"] = _num("vectors.clutter_to_noise_db", get("clutter_to_noise_db", 10.0), 0.0)
-    require(s["clutter_to_noise_db"] <= 200.0, "vectors.clutter_to_noise_db", f"got {s['clutter_to_noise_db']}",
-            "a number 0..200")
-    s["spikes_per_frame"] = _int("vectors.spikes_per_frame", get("spikes_per_frame", 1), 0, L)
-    s["random_length_max"] = _int("vectors.random_length_max", get("random_length_max", 2 * L), W, 1 << 24)
+    s["clutter_start_cell"] = integer("vectors.clutter_start_cell", get("clutter_start_cell", L // 2), 0, L)
+    s["clutter_to_noise_db"] = number("vectors.clutter_to_noise_db", get("clutter_to_noise_db", 10.0), 0.0, 200.0,
+                                      unit="of dB")
+    s["spikes_per_frame"] = integer("vectors.spikes_per_frame", get("spikes_per_frame", 1), 0, L)
+    s["random_length_max"] = integer("vectors.random_length_max", get("random_length_max", 2 * L), W, 1 << 24)
     if formats is not None:
         s["formats"] = _formats("--formats", list(formats))
     else:
         s["formats"] = _formats("vectors.formats", get("formats", ["hex"]))
-    s["chunk_samples"] = _int("vectors.chunk_samples", get("chunk_samples", 1 << 20), 1, MAX_CHUNK)
+    s["chunk_samples"] = integer("vectors.chunk_samples", get("chunk_samples", 1 << 20), 1, MAX_CHUNK)
     require(s["include_corner_cases"] or s["scenario_frames"] or s["random_frames"], "vectors",
             "no frames (every source is off)",
             "include_corner_cases = true, or scenario_frames or random_frames >= 1")

@@ -2,7 +2,7 @@
 
 A trial is one window deep inside a frame: a CUT and ``2R`` reference cells
 (lagging side first, then leading side), every cell drawn independently,
-quantised to an input word (:func:`refmodel.input_quantiser.quantise_power`)
+quantised to an input word (:func:`refmodel.fixedpoint.input_quantiser.quantise_power`)
 and decided with the pipeline's own integer steps:
 :func:`window_statistic` (``docs/bit-true.md`` section 3, both sides
 complete), ``spec.threshold_from_statistic`` (sections 4 to 6) and the
@@ -29,9 +29,9 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
-from .block_spec import BlockSpec
-from .fixed_arith import scale_product
-from .input_quantiser import quantise_power
+from ..block_spec import BlockSpec
+from ..fixedpoint.fixed_arith import scale_product
+from ..fixedpoint.input_quantiser import quantise_power
 
 __all__ = [
     "TrialCounts",

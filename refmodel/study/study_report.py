@@ -8,7 +8,7 @@ after the new report is complete).
 Files
 -----
 ``points.csv``
-    One row per grid point, every metric of :func:`refmodel.quant_study.evaluate_point`.
+    One row per grid point, every metric of :func:`refmodel.study.quant_study.evaluate_point`.
 ``loss_vs_width.png``
     Quantisation loss (dB) against each swept axis, through the reference point.
 ``pfa_vs_width.png``
@@ -33,8 +33,8 @@ from pathlib import Path
 
 import numpy as np
 
-from . import threshold_design as td
-from .output_folder import staged_folder
+from .. import threshold_design as td
+from ..output_folder import staged_folder
 from .quant_study import AXES, StudyResult
 
 __all__ = ["reference_row", "write_report"]

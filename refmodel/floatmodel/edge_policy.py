@@ -20,8 +20,8 @@ missing cells are:
 
 This module holds the names, their validation, the padding that realises them
 along one axis, and the masks telling where the window fits and which side is
-incomplete. The detectors themselves live in :mod:`refmodel.float_cfar` and
-:mod:`refmodel.float_cfar2d`; the exact definitions are in
+incomplete. The detectors themselves live in :mod:`refmodel.floatmodel.float_cfar` and
+:mod:`refmodel.floatmodel.float_cfar2d`; the exact definitions are in
 ``docs/float-model.md``.
 
 Notes
@@ -34,7 +34,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .errors import SpecError
+from ..errors import SpecError
 
 SKIP = "skip"
 ZERO_PAD = "zero-pad"

@@ -33,7 +33,7 @@ from .edge_policy import (
     one_sided_rank,
     pad_axis,
 )
-from .errors import SpecError, require
+from ..errors import SpecError, require
 
 #: Detector kinds, by noise estimate.
 KINDS: tuple[str, ...] = ("ca", "go", "so", "os")
@@ -70,7 +70,7 @@ class CfarResult:
 
 
 # --------------------------------------------------------------------------
-# Validation helpers (shared with refmodel.float_cfar2d)
+# Validation helpers (shared with refmodel.floatmodel.float_cfar2d)
 # --------------------------------------------------------------------------
 
 
@@ -182,7 +182,7 @@ def cfar_1d(
         equal to (``">="``) the threshold.
     edge : {"skip", "zero-pad", "one-sided", "circular"}, optional
         Edge policy where the window does not fit in the frame; see
-        :mod:`refmodel.edge_policy` and ``docs/float-model.md``.
+        :mod:`refmodel.floatmodel.edge_policy` and ``docs/float-model.md``.
 
     Returns
     -------

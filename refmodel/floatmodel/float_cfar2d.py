@@ -25,7 +25,7 @@ from .edge_policy import (
     one_sided_rank,
     pad_axis,
 )
-from .errors import SpecError, require
+from ..errors import SpecError, require
 from .float_cfar import (
     _OS_GATHER_BUDGET,
     CfarResult,

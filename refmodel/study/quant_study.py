@@ -18,11 +18,11 @@ axis                     meaning
 For every grid point (:func:`evaluate_point`) the fixed pipeline is compared
 with the float model that it approximates, both fed the same square-law
 exponential noise (noise level ``m`` LSBs; input convention of
-:mod:`refmodel.input_quantiser`):
+:mod:`refmodel.fixedpoint.input_quantiser`):
 
 * the realised threshold factor and the Pfa the float formula gives for it;
-* the pipeline's exact Pfa (:mod:`refmodel.exact_pfa`) with its error bound,
-  and a Monte Carlo count (:mod:`refmodel.window_trials`) with a
+* the pipeline's exact Pfa (:mod:`refmodel.fixedpoint.exact_pfa`) with its error bound,
+  and a Monte Carlo count (:mod:`refmodel.study.window_trials`) with a
   Clopper-Pearson interval;
 * Pd at each SNR for Swerling 0 and Swerling I targets, fixed (exact) and
   float (:func:`refmodel.threshold_design.pd`);
@@ -70,12 +70,13 @@ from typing import Any, Mapping
 import numpy as np
 from scipy import optimize
 
-from . import threshold_design as td
-from .block_spec import BlockSpec, spec_from_dict
-from .errors import SpecError, require
-from .exact_pfa import trigger_law
-from .fixed_arith import ROUNDING_MODES
-from .input_quantiser import clip_rate
+from .. import threshold_design as td
+from ..block_spec import BlockSpec, spec_from_dict
+from ..errors import SpecError, require
+from ..spec_fields import choice, choice_list, integer, integer_list, number, number_list
+from ..fixedpoint.exact_pfa import trigger_law
+from ..fixedpoint.fixed_arith import ROUNDING_MODES
+from ..fixedpoint.input_quantiser import clip_rate
 from .window_trials import clopper_pearson, run_trials
 
 __all__ = [
@@ -130,97 +131,6 @@ MAX_POINTS = 10_000
 DASK_CONNECT_TIMEOUT = "10s"
 #: SNR search range (dB) for the SNR the pipeline needs.
 SNR_SEARCH_DB = (-30.0, 120.0)
-
-
-# --------------------------------------------------------------------------
-# Parsing of sweep values (TOML values or command-line strings)
-# --------------------------------------------------------------------------
-
-
-def _items(name: str, value: Any) -> list:
-    if isinstance(value, str):
-        parts = [p.strip() for p in value.split(",")]
-        require(all(parts), name, f"got {value!r}", "a comma-separated list of values")
-        return parts
-    if isinstance(value, (list, tuple)):
-        return list(value)
-    return [value]
-
-
-def _int_values(name: str, value: Any, lo: int, hi: int) -> tuple[int, ...]:
-    allowed = f"integers {lo}..{hi}: a list, 'a,b,c', a range 'a:b' or 'a:b:step' (inclusive)"
-    out: list[int] = []
-    for item in _items(name, value):
-        if isinstance(item, bool):
-            raise SpecError(name, f"got {item!r}", allowed)
-        if isinstance(item, int):
-            out.append(item)
-            continue
-        if isinstance(item, str):
-            try:
-                nums = [int(x) for x in item.split(":")]
-            except ValueError:
-                raise SpecError(name, f"got {item!r}", allowed) from None
-            if len(nums) == 1:
-                out.append(nums[0])
-                continue
-            require(len(nums) in (2, 3), name, f"got {item!r}", allowed)
-            step = nums[2] if len(nums) == 3 else 1
-            require(step >= 1 and nums[1] >= nums[0], name, f"got {item!r}", allowed)
-            out.extend(range(nums[0], nums[1] + 1, step))
-            continue
-        raise SpecError(name, f"got {item!r}", allowed)
-    require(len(out) > 0, name, "empty sweep", allowed)
-    bad = [v for v in out if not lo <= v <= hi]
-    require(not bad, name, f"got {bad[0] if bad else None}", allowed)
-    return tuple(dict.fromkeys(out))
-
-
-def _float_values(name: str, value: Any, positive: bool) -> tuple[float, ...]:
-    allowed = "finite numbers > 0: a list or 'a,b,c'" if positive else "finite numbers: a list or 'a,b,c'"
-    out = []
-    for item in _items(name, value):
-        if isinstance(item, bool):
-            raise SpecError(name, f"got {item!r}", allowed)
-        try:
-            x = float(item)
-        except (TypeError, ValueError):
-            raise SpecError(name, f"got {item!r}", allowed) from None
-        require(math.isfinite(x) and (x > 0 or not positive), name, f"got {item!r}", allowed)
-        out.append(x)
-    require(len(out) > 0, name, "empty sweep", allowed)
-    return tuple(dict.fromkeys(out))
-
-
-def _choice_values(name: str, value: Any, choices) -> tuple[str, ...]:
-    allowed = "one or more of " + ", ".join(choices)
-    out = _items(name, value)
-    require(len(out) > 0, name, "empty sweep", allowed)
-    bad = [v for v in out if v not in choices]
-    require(not bad, name, f"got {bad[0]!r}" if bad else "", allowed)
-    return tuple(dict.fromkeys(out))
-
-
-def _number(name: str, value: Any, lo: float, hi: float, allowed: str, open_lo=False, open_hi=False) -> float:
-    if isinstance(value, bool):
-        raise SpecError(name, f"got {value!r}", allowed)
-    try:
-        x = float(value)
-    except (TypeError, ValueError):
-        raise SpecError(name, f"got {value!r}", allowed) from None
-    ok = math.isfinite(x) and (x > lo if open_lo else x >= lo) and (x < hi if open_hi else x <= hi)
-    require(ok, name, f"got {value!r}", allowed)
-    return x
-
-
-def _integer(name: str, value: Any, lo: int, allowed: str) -> int:
-    if isinstance(value, str):
-        try:
-            value = int(value.replace("_", ""))
-        except ValueError:
-            raise SpecError(name, f"got {value!r}", allowed) from None
-    require(isinstance(value, int) and not isinstance(value, bool) and value >= lo, name, f"got {value!r}", allowed)
-    return value
 
 
 # --------------------------------------------------------------------------
@@ -341,28 +251,27 @@ def study_config(spec: BlockSpec, options: Mapping[str, Any] | None = None) -> S
         if name not in values:
             axes[name] = (base[name],)
         elif name in _INT_RANGES:
-            axes[name] = _int_values(fields[name], values[name], *_INT_RANGES[name])
+            axes[name] = integer_list(fields[name], values[name], *_INT_RANGES[name])
         elif name == "rounding":
-            axes[name] = _choice_values(fields[name], values[name], ROUNDING_MODES)
+            axes[name] = choice_list(fields[name], values[name], ROUNDING_MODES)
         else:
-            axes[name] = _float_values(fields[name], values[name], positive=True)
+            axes[name] = number_list(fields[name], values[name], 0.0, open_lo=True)
     n_points = math.prod(len(v) for v in axes.values())
     require(n_points <= MAX_POINTS, "study", f"the grid has {n_points} points", f"at most {MAX_POINTS} points")
 
     def get(key):
         return values.get(key, DEFAULTS[key])
 
-    scaling = get("noise_scaling")
-    require(scaling in NOISE_SCALINGS, fields["noise_scaling"], f"got {scaling!r}", '"track" or "fixed"')
-    snr = _float_values(fields["snr_db"], get("snr_db"), positive=False)
-    sw = tuple(int(v) for v in _int_values(fields["swerling"], get("swerling"), 0, 1))
-    pd = _number(fields["pd"], get("pd"), 0.0, 1.0, "a number in (0, 1)", open_lo=True, open_hi=True)
-    trials = _integer(fields["mc_trials"], get("mc_trials"), 0, "an integer >= 0")
-    conf = _number(fields["confidence"], get("confidence"), 0.0, 1.0, "a number in (0, 1)", True, True)
-    seed = _integer(fields["seed"], get("seed"), 0, "an integer >= 0")
-    max_loss = _number(fields["max_loss_db"], get("max_loss_db"), 0.0, math.inf, "a finite number of dB >= 0")
-    tol = _number(fields["pfa_tolerance"], get("pfa_tolerance"), 0.0, math.inf,
-                  "a finite relative tolerance >= 0 (0.1 = Pfa within +-10% of the design)")
+    scaling = choice(fields["noise_scaling"], get("noise_scaling"), NOISE_SCALINGS)
+    snr = number_list(fields["snr_db"], get("snr_db"))
+    sw = integer_list(fields["swerling"], get("swerling"), 0, 1)
+    pd = number(fields["pd"], get("pd"), 0.0, 1.0, open_lo=True, open_hi=True, text=True)
+    trials = integer(fields["mc_trials"], get("mc_trials"), 0, text=True)
+    conf = number(fields["confidence"], get("confidence"), 0.0, 1.0, open_lo=True, open_hi=True, text=True)
+    seed = integer(fields["seed"], get("seed"), 0, text=True)
+    max_loss = number(fields["max_loss_db"], get("max_loss_db"), 0.0, text=True, unit="of dB")
+    tol = number(fields["pfa_tolerance"], get("pfa_tolerance"), 0.0, text=True,
+                 unit="(relative tolerance: 0.1 = Pfa within +-10% of the design)")
     design_pfa = spec.design_pfa if spec.design_pfa is not None else td.pfa_from_alpha(
         spec.kind, spec.n_ref, spec.alpha, spec.rank)
     require(pd > design_pfa, fields["pd"], f"got {pd}", f"a Pd above the design Pfa {design_pfa:.3g}")

@@ -16,7 +16,7 @@ overflow: bit for bit the pipeline's). With independent cells,
 so one law, that of the trigger word (:class:`TriggerLaw`), gives the Pfa
 (CUT = noise) and the Pd of every target model and SNR (CUT = target plus
 noise) without recomputation. The law of ``S`` is computed exactly from the
-law of the quantised, clipped input word (:mod:`refmodel.input_quantiser`):
+law of the quantised, clipped input word (:mod:`refmodel.fixedpoint.input_quantiser`):
 
 * ``ca``: the 2R-fold convolution power of the word's pmf (sum of 2R cells);
 * ``go`` / ``so``: the R-fold power (one side), then the law of the larger /
@@ -82,8 +82,8 @@ import numpy as np
 from scipy import fft as sp_fft
 from scipy import special
 
-from .block_spec import BlockSpec
-from .errors import require
+from ..block_spec import BlockSpec
+from ..errors import require
 from .fixed_arith import scale_product
 from .input_quantiser import log_noise_pmf, noise_cdf, support_limit, word_sf, word_sf_smooth
 
@@ -339,13 +339,13 @@ class TriggerLaw:
         snr : float
             Linear per-cell SNR of the CUT's target.
         swerling : {0, 1}
-            Target model (see :func:`refmodel.input_quantiser.word_sf`).
+            Target model (see :func:`refmodel.fixedpoint.input_quantiser.word_sf`).
 
         Notes
         -----
         With a target, words of mass below 1e-20 are left out (at most
         ``2**W_in * 1e-20`` absolute) and Swerling 0 survival values are
-        interpolated (:func:`refmodel.input_quantiser.word_sf_smooth`, error
+        interpolated (:func:`refmodel.fixedpoint.input_quantiser.word_sf_smooth`, error
         below 4e-8); the Pfa (``snr = 0``) uses every word and exact values.
         """
         if snr == 0.0:

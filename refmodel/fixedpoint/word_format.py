@@ -10,7 +10,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .block_spec import BlockSpec
+from ..block_spec import BlockSpec
 
 
 @dataclass(frozen=True)

@@ -22,7 +22,7 @@ frame samples", a side is incomplete when its outer end cell is not. No frame
 index or length is kept anywhere, as in the hardware.
 
 The model is slow by design (Python integers, one call per clock). The fast
-vectorised model (``refmodel/pipeline_fast.py``) must produce the same words;
+vectorised model (``refmodel/fixedpoint/pipeline_fast.py``) must produce the same words;
 ``tests/test_pipeline_equivalence.py`` checks that.
 """
 
@@ -33,8 +33,8 @@ from typing import Sequence
 
 import numpy as np
 
-from .block_spec import BlockSpec
-from .errors import require
+from ..block_spec import BlockSpec
+from ..errors import require
 from .fixed_arith import apply_overflow, scale_product
 from .word_format import PipelineOutput, output_field_offsets, pack_input, unpack_output
 
@@ -309,7 +309,7 @@ def simulate(
 def run_structural(spec: BlockSpec, samples, last) -> PipelineOutput:
     """Output fields for a stimulus stream, from the structural model at full rate.
 
-    The counterpart of the fast model's :func:`refmodel.pipeline_fast.run_fast`;
+    The counterpart of the fast model's :func:`refmodel.fixedpoint.pipeline_fast.run_fast`;
     see :func:`simulate` for the arguments and for stalls and timing.
     """
     words = simulate(spec, samples, last).words

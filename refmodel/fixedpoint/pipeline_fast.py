@@ -4,7 +4,7 @@
 every output word as soon as it is determined; :func:`run_fast` runs a whole
 stream in one call. The words are those of ``docs/bit-true.md`` sections 1-8,
 bit for bit; the cycle-stepped structural model
-(``refmodel/pipeline_struct.py``) produces the same words one clock at a time.
+(``refmodel/fixedpoint/pipeline_struct.py``) produces the same words one clock at a time.
 
 How it is fast
 --------------
@@ -42,8 +42,8 @@ from __future__ import annotations
 import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
 
-from .block_spec import BlockSpec
-from .errors import SpecError, require
+from ..block_spec import BlockSpec
+from ..errors import SpecError, require
 from .fixed_arith import round_shift, scale_product
 from .word_format import FIELDS, PipelineOutput
 

@@ -39,7 +39,7 @@ import math
 import numpy as np
 from scipy import interpolate, special, stats
 
-from .errors import require
+from ..errors import require
 
 #: Knots per noise level of the Hermite interpolation in :func:`word_sf_smooth`.
 HERMITE_KNOTS_PER_LEVEL = 16

@@ -1,0 +1,1 @@
+"""The quantisation study: sweep, Monte Carlo trials on independent windows, report."""
