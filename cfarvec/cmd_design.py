@@ -134,21 +134,35 @@ def fixed_report(spec: BlockSpec) -> dict:
     -------
     dict
         Spec source, the exact and quantised constant, its signed digits,
-        the realised alpha and the Pfa it gives by the formulas of
-        :mod:`refmodel.threshold_design`, against the design Pfa, and
-        every derived width (:meth:`BlockSpec.derived`).
+        the realised alpha; ``float_pfa_at_realised_alpha``, the float formula
+        of :mod:`refmodel.threshold_design` evaluated at the realised alpha;
+        ``exact_pfa``, per noise level of the spec's study (``study.noise_level_lsb``,
+        default ``2**floor(input_bits / 2)`` LSBs), the exact Pfa of an interior
+        cell of the quantised pipeline (:mod:`refmodel.fixedpoint.exact_pfa`)
+        with its error bound; both against the design Pfa; and every derived
+        width (:meth:`BlockSpec.derived`).
     """
+    from refmodel.fixedpoint.exact_pfa import trigger_law
+    from refmodel.study.quant_study import study_config
+
     design_pfa = spec.design_pfa if spec.design_pfa is not None else td.pfa_from_alpha(
         spec.kind, spec.n_ref, spec.alpha, spec.rank)
-    realised_pfa = td.pfa_from_alpha(spec.kind, spec.n_ref, spec.realised_alpha, spec.rank)
+    float_pfa = td.pfa_from_alpha(spec.kind, spec.n_ref, spec.realised_alpha, spec.rank)
+    exact = []
+    for noise in study_config(spec).axes["noise_level_lsb"]:
+        law = trigger_law(spec, noise, pfa_hint=min(design_pfa, 1e-6))
+        pfa = law.pfa()
+        exact.append({"noise_lsb": noise, "pfa": pfa, "error_bound": law.pfa_error_bound(),
+                      "over_design_pfa": pfa / design_pfa})
     return {
         "spec": spec.source,
         "alpha": spec.alpha,
         "alpha_scaled_exact": spec.alpha_target,
         "alpha_digits_signed": [[sign, power] for sign, power in spec.alpha_digits],
         "design_pfa": design_pfa,
-        "realised_pfa": realised_pfa,
-        "realised_over_design_pfa": realised_pfa / design_pfa,
+        "float_pfa_at_realised_alpha": float_pfa,
+        "float_pfa_over_design_pfa": float_pfa / design_pfa,
+        "exact_pfa": exact,
         **spec.derived(),
     }
 
@@ -163,7 +177,11 @@ def _text_fixed(r: dict) -> list[str]:
         f"  constant A        {f['alpha_int']}  ({f['alpha_bits']} bits, exact {f['alpha_scaled_exact']:.6f})",
         f"  signed digits     {f['alpha_digits']}: {digits}",
         f"  realised alpha    {f['realised_alpha']:.10g}  (design {f['alpha']:.10g})",
-        f"  realised Pfa      {f['realised_pfa']:.6e}  (design {f['design_pfa']:.6e}, ratio {f['realised_over_design_pfa']:.4f})",
+        f"  float Pfa         {f['float_pfa_at_realised_alpha']:.6e}  (float formula at the realised alpha; design "
+        f"{f['design_pfa']:.6e}, ratio {f['float_pfa_over_design_pfa']:.4f})",
+        *(f"  exact Pfa         {e['pfa']:.6e}  (quantised pipeline, interior cell, noise {e['noise_lsb']:g} LSB, "
+          f"error <= "
+          f"{e['error_bound']:.1e}; ratio {e['over_design_pfa']:.4f})" for e in f["exact_pfa"]),
         f"  widths            side sum {f['side_sum_bits']}, statistic {f['statistic_bits']}, product "
         f"{f['product_bits']}, threshold {f['threshold_bits']}, output word {f['output_bits']} bits",
         f"  rounding          drops {f['drop_bits']} bits (mean shift {f['mean_shift']})",

@@ -79,7 +79,7 @@ class BlockSpec:
     edge : {"skip", "zero-pad", "one-sided", "circular"}
         Edge policy.
     alpha : float
-        Threshold factor (given, or derived from ``design_pfa``).
+        Threshold multiplier (alpha), given or derived from ``design_pfa``.
     design_pfa : float or None
         The false-alarm probability the design was made for, when given.
     input_bits, sum_bits, alpha_frac_bits, alpha_csd_digits, threshold_frac_bits, threshold_bits : int
@@ -218,7 +218,7 @@ class BlockSpec:
 
     @property
     def realised_alpha(self) -> float:
-        """The threshold factor the quantised constant realises: ``A * divisor / 2**(F_A + s)``."""
+        """The threshold multiplier (alpha) the quantised constant realises: ``A * divisor / 2**(F_A + s)``."""
         return self.alpha_int * self.mean_divisor / 2.0 ** self.product_frac_bits
 
     @property
@@ -321,7 +321,7 @@ class BlockSpec:
         """Derived widths and constants, for reports and manifests."""
         return {
             "window_length": self.window_length,
-            "side_sum_bits": self.side_sum_bits,
+            "side_sum_bits": self.sum_bits,  # the width used (fixed.sum_bits, or its minimum by default)
             "statistic_bits": self.statistic_bits,
             "alpha_int": self.alpha_int,
             "alpha_bits": self.alpha_bits,
@@ -424,10 +424,10 @@ def spec_from_dict(data: Mapping[str, Any], source: str | None = None) -> BlockS
             f"an integer 0..{spec.product_frac_bits} (the product's fraction bits)")
     require(spec.product_bits <= MAX_PRODUCT_BITS, "fixed.alpha_frac_bits",
             f"product S*A would be {spec.product_bits} bits", f"a format whose product fits {MAX_PRODUCT_BITS} bits")
-    # Automatic threshold width: enough for the largest threshold, so nothing saturates.
+    # Automatic threshold width (docs/bit-true.md section 6): holds every threshold, so nothing saturates.
     if trunc:
-        pos = sum(1 << p for sgn, p in spec.alpha_digits if sgn > 0)
-        t_max = (spec.statistic_max * pos) >> spec.drop_bits
+        # Each positive digit's truncated term at S_max; negative digits only subtract.
+        t_max = sum((spec.statistic_max << p) >> spec.drop_bits for sgn, p in spec.alpha_digits if sgn > 0)
     else:
         t_max = scale_product(spec.statistic_max, spec.alpha_int, spec.drop_bits, rounding)
     auto_t = max(1, int(t_max).bit_length())

@@ -24,7 +24,7 @@ import vectors.vector_set as vector_set
 from refmodel.block_spec import load_spec, spec_from_dict
 from refmodel.errors import SpecError
 from refmodel.fixedpoint.pipeline_fast import run_fast
-from vectors.vector_set import write_vector_set
+from vectors.vector_set import vector_settings, write_vector_set
 
 ROOT = Path(__file__).resolve().parents[1]
 SMALL = ROOT / "tests" / "data" / "vectors_small.toml"
@@ -238,3 +238,42 @@ def test_cli_writes_refuses_and_reports_bad_input_in_one_line(tmp_path, capsys):
     assert "--force" in capsys.readouterr().err
     assert cli.main(["vectors", str(SMALL), "-o", str(tmp_path / "ok"), "--force", "--seed", "9"]) == 0
     assert json.loads((tmp_path / "ok" / "manifest.json").read_text())["seed"] == 9
+
+
+def _bare_spec(r: int, g: int, frame_length: int, **fixed):
+    return spec_from_dict({"detector": {"kind": "ca", "ref_cells_per_side": r, "guard_cells_per_side": g,
+                                        "alpha": 3.0},
+                           "fixed": {"input_bits": 8, **fixed}, "stream": {"frame_length": frame_length}})
+
+
+@pytest.mark.parametrize("frame_length", [3, 4, 5])
+def test_issue15_default_targets_fit_the_shortest_frames(frame_length, tmp_path):
+    """Issue 15: the default 4-cell target was refused for frame_length <= 3 (now cut at the frame
+    end, docs/vectors.md); R = 1, G = 0 makes W = 3, the shortest frame the block spec accepts."""
+    spec = _bare_spec(1, 0, frame_length)
+    settings = vector_settings(spec)
+    for t in settings.targets:
+        assert 0 <= t.cell < frame_length and 1 <= t.extent <= frame_length - t.cell
+    extended = [t for t in settings.targets if t.snr_db == 12.0]
+    assert extended and extended[0].cell == frame_length // 4
+    assert extended[0].extent == min(4, frame_length - frame_length // 4)
+    write_vector_set(spec, tmp_path / "set", formats=["hex"])
+    assert (tmp_path / "set" / "manifest.json").is_file()
+
+
+@pytest.mark.parametrize("frame_length, want", [(2**23, 2**24), (2**23 + 1, 2**24), (2**24, 2**24), (1000, 2000)])
+def test_issue15_default_random_length_max_keeps_its_own_limit(frame_length, want):
+    """Issue 15: the default 2 * frame_length broke the 2^24 limit above frame_length 2^23
+    (docs/vectors.md: the default is 2 * frame_length, at most 2^24)."""
+    assert vector_settings(_bare_spec(4, 1, frame_length)).random_length_max == want
+
+
+def test_issue15_manifest_side_sum_bits_is_the_width_used(tmp_path):
+    """Issue 15: derived.side_sum_bits reported the minimum bitlen(R (2^W_in - 1)) = bitlen(4 * 255)
+    = 10 even when fixed.sum_bits = 24 was given; the running sums are 24 bits wide
+    (docs/bit-true.md section 3)."""
+    spec = spec_from_dict({**_bare_spec(4, 1, 64, sum_bits=24).to_dict(), "vectors": {"scenario_frames": 1,
+                                                                                     "random_frames": 1}})
+    manifest = write_vector_set(spec, tmp_path / "set", formats=["hex"])
+    assert manifest["derived"]["side_sum_bits"] == 24
+    assert _bare_spec(4, 1, 64).derived()["side_sum_bits"] == 10  # 4 * 255 = 1020 < 2^10

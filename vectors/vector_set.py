@@ -48,6 +48,8 @@ SOURCES = ("corner_cases", "scenario", "random")
 STIMULUS_COLUMNS = ("frame", "index", "sample", "last")
 EXPECTED_COLUMNS = ("frame", "index", "cut", "threshold", "det", "valid", "last")
 MAX_CHUNK = 1 << 24
+#: Longest random frame (``vectors.random_length_max``): the block spec's longest frame, 2^24 samples.
+MAX_FRAME = 1 << 24
 
 _KEYS = ("seed", "include_corner_cases", "scenario_frames", "random_frames", "noise_level_lsb", "targets",
          "clutter_start_cell", "clutter_to_noise_db", "spikes_per_frame", "random_length_max", "formats",
@@ -83,15 +85,17 @@ def default_targets(spec: BlockSpec) -> list[dict]:
     """Default scenario targets, placed by fractions of the frame length ``L``.
 
     A point target (Swerling 0, 15 dB) at ``L/8``; a 4-cell extended target
-    (Swerling I, 12 dB) at ``L/4``; two closely spaced targets at ``3L/8`` and
-    ``G + 2`` cells further (inside the first one's reference cells; 13 dB
-    Swerling 0 and 10 dB Swerling I); a Swerling I target of 18 dB just past
-    the clutter edge at ``L/2 + 3``.
+    (Swerling I, 12 dB) at ``L/4``, cut to the cells left in the frame; two
+    closely spaced targets at ``3L/8`` and ``G + 2`` cells further (inside the
+    first one's reference cells; 13 dB Swerling 0 and 10 dB Swerling I); a
+    Swerling I target of 18 dB just past the clutter edge at ``L/2 + 3``.
+    Targets whose cell falls outside the frame are dropped, so the defaults
+    are valid for every frame length the block spec accepts.
     """
     L, G = spec.frame_length, spec.guard_per_side
     raw = [
         {"cell": L // 8, "snr_db": 15.0, "extent": 1, "swerling": 0},
-        {"cell": L // 4, "snr_db": 12.0, "extent": 4, "swerling": 1},
+        {"cell": L // 4, "snr_db": 12.0, "extent": min(4, L - L // 4), "swerling": 1},
         {"cell": 3 * L // 8, "snr_db": 13.0, "extent": 1, "swerling": 0},
         {"cell": 3 * L // 8 + G + 2, "snr_db": 10.0, "extent": 1, "swerling": 1},
         {"cell": L // 2 + 3, "snr_db": 18.0, "extent": 1, "swerling": 1},
@@ -164,7 +168,8 @@ def vector_settings(spec: BlockSpec, *, seed: int | None = None, formats=None) -
     s["clutter_to_noise_db"] = number("vectors.clutter_to_noise_db", get("clutter_to_noise_db", 10.0), 0.0, 200.0,
                                       unit="of dB")
     s["spikes_per_frame"] = integer("vectors.spikes_per_frame", get("spikes_per_frame", 1), 0, L)
-    s["random_length_max"] = integer("vectors.random_length_max", get("random_length_max", 2 * L), W, 1 << 24)
+    s["random_length_max"] = integer("vectors.random_length_max", get("random_length_max", min(2 * L, MAX_FRAME)), W,
+                                      MAX_FRAME)
     if formats is not None:
         s["formats"] = _formats("--formats", list(formats))
     else:
