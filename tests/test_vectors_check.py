@@ -142,7 +142,8 @@ def test_resealed_spec_edit_is_caught_by_the_model(pristine, tmp_path):
     spec = spec_from_dict(m["spec"])
     m["derived"] = spec.derived()
     m["spec"] = spec.to_dict()
-    (folder / "manifest.json").write_text(json.dumps(_reseal(m)))
+    # Written in the documented form (docs/vectors.md: indent 2, keys sorted, ASCII, final newline).
+    (folder / "manifest.json").write_bytes((json.dumps(_reseal(m), indent=2, sort_keys=True) + "\n").encode())
     r = check_vector_set(folder)
     assert not r.ok
     assert r.findings[0].file == "expected.hex" and r.findings[0].field == "threshold", str(r.findings[0])
@@ -188,3 +189,80 @@ def test_set_from_a_design_pfa_spec_checks(tmp_path):
     write_vector_set(spec_from_dict(d), tmp_path / "set")
     r = check_vector_set(tmp_path / "set")
     assert r.ok, r.summary()
+
+
+# --------------------------------------------------------------------------
+# Issue 15 item 4: the check seals bytes, lists unexpected files, names the damaged file.
+# --------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("edit", [
+    lambda t: t.replace(b"1e-06", b"1E-06", 1),  # the same number, another spelling (RFC 8259 sec. 6)
+    lambda t: t.replace(b'\n  "', b'\n   "'),  # re-indented: whitespace between tokens (RFC 8259 sec. 2)
+    lambda t: t.replace(b"\n", b"\r\n"),  # CRLF line ends
+    lambda t: t.rstrip(b"\n"),  # no final newline
+    lambda t: t.replace(b'"format": "cfarvec-vector-set"', b'"format": "cfarvec-vector-s\\u0065t"'),  # escape
+], ids=["exponent-case", "indent", "crlf", "no-final-newline", "escaped-char"])
+def test_issue15_same_meaning_manifest_edit_is_found(tmp_path, edit):
+    """Issue 15: each edit leaves json.loads' result unchanged (checked below), so only the bytes
+    can tell; the check must fail and blame manifest.json."""
+    d = load_spec(SMALL).to_dict()
+    del d["detector"]["alpha"]
+    d["detector"]["design_pfa"] = 1e-6  # recorded as 1e-06 in the manifest
+    d["vectors"].update(scenario_frames=1, random_frames=1, include_corner_cases=False, formats=["hex"])
+    folder = tmp_path / "set"
+    write_vector_set(spec_from_dict(d), folder)
+    assert check_vector_set(folder).ok
+    text = (folder / "manifest.json").read_bytes()
+    assert b"1e-06" in text
+    edited = edit(text)
+    assert edited != text and json.loads(edited) == json.loads(text)
+    (folder / "manifest.json").write_bytes(edited)
+    r = check_vector_set(folder)
+    assert not r.ok
+    assert r.findings[0].file == "manifest.json", r.summary()
+
+
+def test_issue15_stray_files_are_listed(tiny, tmp_path):
+    """Issue 15: files the manifest does not list (hidden ones and folders too) are each reported."""
+    folder = _copy(tiny, tmp_path)
+    (folder / "notes.txt").write_text("left by hand")
+    (folder / ".hidden").write_bytes(b"")
+    (folder / "sub").mkdir()
+    r = check_vector_set(folder)
+    assert not r.ok
+    stray = sorted(f.file for f in r.findings if "not listed" in f.message)
+    assert stray == [".hidden", "notes.txt", "sub"], r.summary()
+    assert len(r.findings) == 3
+
+
+@pytest.mark.parametrize("damage", [
+    lambda t: t + t.split(b"\n")[-2] + b"\n",  # the last line twice
+    lambda t: t + b"000\n",  # one extra word
+    lambda t: b"",  # emptied
+    lambda t: t[: t.index(b"\n") + 1] + t,  # the first line twice
+    lambda t: bytes([t[0] ^ 1]) + t[1:],  # one bit
+], ids=["last-line-twice", "extra-word", "emptied", "first-line-twice", "flipped-bit"])
+def test_issue15_damaged_stimulus_hex_is_named(tmp_path, damage):
+    """Issue 15: with stimulus.hex damaged (its SHA-256 fails, stimulus.bin's passes) the first
+    finding names stimulus.hex, not stimulus.bin or expected.hex."""
+    d = load_spec(SMALL).to_dict()
+    d["vectors"].update(scenario_frames=2, random_frames=2, formats=["hex", "bin", "csv"])
+    folder = tmp_path / "set"
+    write_vector_set(spec_from_dict(d), folder)
+    path = folder / "stimulus.hex"
+    path.write_bytes(damage(path.read_bytes()))
+    r = check_vector_set(folder)
+    assert not r.ok
+    assert r.findings[0].file == "stimulus.hex", r.summary()
+    assert any(f.file == "stimulus.hex" and "SHA-256" in f.message for f in r.findings)
+
+
+def test_crlf_data_file_is_found_at_its_first_line(pristine, tmp_path):
+    """A hex file with CRLF line ends is wrong from line 1 on (docs/vectors.md: LF-terminated
+    fixed-width lines); the finding names that line, not the end of the file."""
+    folder = _copy(pristine, tmp_path)
+    path = folder / "stimulus.hex"
+    path.write_bytes(path.read_bytes().replace(b"\n", b"\r\n"))
+    first = check_vector_set(folder).findings[0]
+    assert (first.file, first.line) == ("stimulus.hex", 1), str(first)

@@ -5,10 +5,11 @@
 finds as a :class:`Finding` (file, line, frame, index in the frame, field):
 
 1. ``manifest.json`` parses, is sealed (its ``manifest_sha256`` matches, see
-   :mod:`vectors.manifest`), names a valid block spec, and its derived
-   widths, latency and word layout are what that spec gives.
+   :mod:`vectors.manifest`), is byte for byte in the one form it is written
+   in (so a same-meaning edit is caught too), names a valid block spec, and
+   its derived widths, latency and word layout are what that spec gives.
 2. Every listed file exists with the listed line count and SHA-256
-   (FIPS 180-4, through :mod:`hashlib`).
+   (FIPS 180-4, through :mod:`hashlib`), and the folder holds nothing else.
 3. Content, streamed in chunks: the stimulus is well formed (each frame at
    least one window long, the stream ends on a last marker); every other
    format carries the same words as the ``hex`` file; the CUT and last
@@ -17,9 +18,10 @@ finds as a :class:`Finding` (file, line, frame, index in the frame, field):
    gives every expected word, field for field.
 
 Content checks stop at the first difference, which is reported before any
-hash mismatch, so a damaged line is named where it is. Where expected words
-disagree with the model and ``stimulus.hex`` fails its hash, the stimulus is
-named as the damaged file.
+hash mismatch, so a damaged line is named where it is. Where another file
+disagrees with ``stimulus.hex`` (other formats, expected words, line counts)
+and ``stimulus.hex`` fails its hash while the other file passes, the stimulus
+is named as the damaged file.
 """
 
 from __future__ import annotations
@@ -36,7 +38,8 @@ from refmodel.errors import SpecError, require
 from refmodel.fixedpoint.pipeline_fast import FastPipeline
 from refmodel.fixedpoint.word_format import FIELDS, PipelineOutput, pack_output, unpack_input, unpack_output
 
-from .manifest import DIGEST_KEY, NAME, SET_FORMAT, SET_FORMAT_VERSION, digest, read_manifest, word_layout
+from .manifest import (DIGEST_KEY, NAME, SET_FORMAT, SET_FORMAT_VERSION, digest, form_difference, parse_manifest,
+                       word_layout)
 from .vector_set import EXPECTED_COLUMNS, STIMULUS_COLUMNS, FramePosition
 from .writers import FORMATS, HEX_VALUE, ParseError, line_bytes, parse_csv, parse_fixed
 
@@ -209,6 +212,13 @@ def _hash_findings(folder: Path, recs: dict) -> tuple[list[Finding], set[str]]:
     return out, bad
 
 
+def _stray_findings(folder: Path, recs: dict) -> list[Finding]:
+    """Every entry of the set folder (hidden ones and folders included) that the manifest does not list."""
+    listed = {r["name"] for r in recs.values()} | {NAME}
+    return [Finding(p.name, "is not listed in the manifest (an unexpected file in the set folder)")
+            for p in sorted(folder.iterdir(), key=lambda p: p.name) if p.name not in listed]
+
+
 # --------------------------------------------------------------------------
 # Readers
 # --------------------------------------------------------------------------
@@ -296,6 +306,13 @@ class _Content:
         """
         return self.stim.name if self.stim_bad and name not in self.bad else name
 
+    def _against_stimulus(self, name: str, msg: str, **where) -> Finding:
+        """A finding about ``name`` disagreeing with the stimulus, naming the damaged file (:meth:`_blame`)."""
+        blamed = self._blame(name)
+        if blamed != name:
+            msg = (msg if name in msg else f"{name} {msg}") + f" ({blamed} fails its SHA-256, {name} passes)"
+        return Finding(blamed, msg, **where)
+
     def _compare_columns(self, reader: _Reader, first_line: int, got: np.ndarray, want: list[np.ndarray],
                          names: tuple[str, ...], frame, index, ref: str) -> None:
         n = min(got.shape[0], want[0].shape[0])
@@ -305,11 +322,12 @@ class _Content:
         if diff.any():
             i = int(np.argmax(diff))
             c = next(c for c in range(len(names)) if int(got[i, c]) != int(want[c][i]))
-            raise _Mismatch(self._at(self._blame(reader.name), first_line, i, frame, index, names[c],
-                                     f"is {int(got[i, c])} in {reader.name}, {ref} gives {int(want[c][i])}"))
+            raise _Mismatch(self._against_stimulus(
+                reader.name, f"is {int(got[i, c])} in {reader.name}, {ref} gives {int(want[c][i])}",
+                line=first_line + i, frame=int(frame[i]), index=int(index[i]), field=names[c]))
         if got.shape[0] < want[0].shape[0]:
-            raise _Mismatch(Finding(reader.name, f"ends at line {first_line + n - 1}; {ref} gives more",
-                                    line=first_line + n))
+            raise _Mismatch(self._against_stimulus(reader.name, f"ends at line {first_line + n - 1}; {ref} gives more",
+                                                   line=first_line + n))
 
     # -- stimulus side --------------------------------------------------
     def stimulus_chunk(self) -> tuple[np.ndarray, np.ndarray] | None:
@@ -329,17 +347,19 @@ class _Content:
         # The expected words' CUT and last fields mirror the stimulus line for line.
         mirror = self.mirror.read(words.shape[0])
         if mirror.shape[0] < words.shape[0]:
-            raise _Mismatch(Finding(self.mirror.name, f"ends at line {self.mirror.line - 1}, before the stimulus",
-                                    line=self.mirror.line))
+            raise _Mismatch(self._against_stimulus(self.mirror.name,
+                                                   f"ends at line {self.mirror.line - 1}, before the stimulus",
+                                                   line=self.mirror.line))
         echo = unpack_output(self.spec, mirror)
         d_last, d_cut = echo.last != last, echo.cut != samples
         if (d_last | d_cut).any():
             i = int(np.argmax(d_last | d_cut))
             name, have, want, what = (("last", echo.last, last, "last") if d_last[i]
                                       else ("cut", echo.cut, samples, "sample"))
-            raise _Mismatch(self._at(self._blame(self.mirror.name), first, i, frame, index, name,
-                                     f"is {int(have[i])} in {self.mirror.name}, {what} is {int(want[i])} in "
-                                     f"{self.stim.name}"))
+            raise _Mismatch(self._against_stimulus(
+                self.mirror.name, f"is {int(have[i])} in {self.mirror.name}, {what} is {int(want[i])} in "
+                                  f"{self.stim.name}",
+                line=first + i, frame=int(frame[i]), index=int(index[i]), field=name))
         # Frame structure.
         ends = np.flatnonzero(last)
         if ends.size:
@@ -376,12 +396,12 @@ class _Content:
                 i = int(np.argmax(diff))
                 have = unpack_output(self.spec, got[i : i + 1])
                 fld = next(f for f in FIELDS if int(getattr(have, f)[0]) != int(getattr(out, f)[i]))
-                raise _Mismatch(self._at(self._blame(r.name), first, i, frame, index, fld,
-                                         f"is {int(getattr(have, fld)[0])} in {r.name}, the model gives "
-                                         f"{int(getattr(out, fld)[i])}"))
+                raise _Mismatch(self._against_stimulus(
+                    r.name, f"is {int(getattr(have, fld)[0])} in {r.name}, the model gives {int(getattr(out, fld)[i])}",
+                    line=first + i, frame=int(frame[i]), index=int(index[i]), field=fld))
             if got.shape[0] < model.shape[0]:
-                raise _Mismatch(Finding(r.name, f"ends at line {first + n - 1}; the model gives more words",
-                                        line=first + n))
+                raise _Mismatch(self._against_stimulus(r.name, f"ends at line {first + n - 1}; the model gives more "
+                                                               f"words", line=first + n))
 
     def run(self) -> None:
         pipe = FastPipeline(self.spec)
@@ -400,8 +420,9 @@ class _Content:
             raise _Mismatch(Finding(self.stim.name, f"the model refuses the stimulus ({exc})")) from None
         self.expected_words(out)
         for r in self.readers:
-            if r is not self.mirror and not r.at_end():
-                raise _Mismatch(Finding(r.name, "has more lines than the stimulus has words", line=r.line))
+            if r is not self.mirror and r is not self.stim and not r.at_end():
+                raise _Mismatch(self._against_stimulus(r.name, "has more lines than the stimulus has words",
+                                                       line=r.line))
 
 
 def _locate(folder: Path, spec: BlockSpec, rec: dict, word: int) -> tuple[int, int]:
@@ -479,9 +500,15 @@ def check_vector_set(folder: str | Path, *, chunk_samples: int = CHUNK) -> Check
     require(path.is_dir(), "DIR", f"{str(path)!r} is not a folder", allowed)
     require((path / NAME).is_file(), "DIR", f"no {NAME} in {str(path)!r}", allowed)
     try:
-        m = read_manifest(path)
+        raw = (path / NAME).read_bytes()
+        m = parse_manifest(raw)
     except (OSError, ValueError) as exc:
         return CheckReport(str(path), (Finding(NAME, f"cannot be parsed ({exc})"),))
+    form = []
+    line = form_difference(raw, m)
+    if line is not None:
+        form.append(Finding(NAME, "is not byte for byte the form cfarvec writes (indent 2, keys sorted, ASCII, LF "
+                                  "line ends, final newline): edited, even if the meaning is the same", line=line))
     head: list[Finding] = []
     hashes: list[Finding] = []
     found: list[Finding] = []
@@ -491,6 +518,7 @@ def check_vector_set(folder: str | Path, *, chunk_samples: int = CHUNK) -> Check
         head = _manifest_findings(m, spec)
         recs = _file_records(m, spec)
         hashes, bad = _hash_findings(path, recs)
+        hashes += _stray_findings(path, recs)
         files = len(recs)
         if not any(f.message.startswith("cannot be read") for f in hashes):
             content = _Content(path, spec, recs, bad, chunk_samples)
@@ -509,7 +537,8 @@ def check_vector_set(folder: str | Path, *, chunk_samples: int = CHUNK) -> Check
         if word >= 0:
             frame, index = _locate(path, spec, recs[("stimulus", "hex")], word)
             found[0] = Finding(f.file, f.message, f.line, frame, index, f.field or "word")
-    # The manifest's seal first (an edited manifest explains what follows), then content, then hashes.
+    # The manifest's seal and form first (an edited manifest explains what follows), then content, then hashes
+    # and unexpected files.
     seal = [f for f in head if f.field == DIGEST_KEY]
     rest = [f for f in head if f.field != DIGEST_KEY]
-    return CheckReport(str(path), tuple(seal + rest + found + hashes), frames, samples, files)
+    return CheckReport(str(path), tuple(seal + form + rest + found + hashes), frames, samples, files)

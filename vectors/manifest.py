@@ -9,7 +9,10 @@ SHA-256). The field-by-field reference is ``docs/vectors.md``.
 The manifest seals itself: ``manifest_sha256`` is the SHA-256 (FIPS 180-4,
 through :mod:`hashlib`) of the canonical JSON of every other field (keys
 sorted, no whitespace, ASCII), so an edit to any field is detected even where
-nothing else depends on it.
+nothing else depends on it. The file is written in exactly one form
+(:func:`render`), so together the seal and the form fix every byte: an edit
+that keeps the meaning (``1E-06`` for ``1e-06``, other indentation, CRLF
+line ends) is caught too (:func:`form_difference`).
 """
 
 from __future__ import annotations
@@ -96,10 +99,14 @@ def build_manifest(spec: BlockSpec, settings: dict, sources: list[dict], cases: 
     return m
 
 
+def render(manifest: dict) -> bytes:
+    """The exact bytes of ``manifest.json``: indented by 2, keys sorted, ASCII, LF line ends, final newline."""
+    return (json.dumps(manifest, indent=2, sort_keys=True, ensure_ascii=True, allow_nan=False) + "\n").encode("ascii")
+
+
 def write_manifest(folder: Path, manifest: dict) -> None:
-    """Write ``manifest.json`` (indented, keys sorted, trailing newline)."""
-    text = json.dumps(manifest, indent=2, sort_keys=True, ensure_ascii=True, allow_nan=False) + "\n"
-    (Path(folder) / NAME).write_text(text, encoding="ascii")
+    """Write ``manifest.json`` in the one form :func:`render` gives."""
+    (Path(folder) / NAME).write_bytes(render(manifest))
 
 
 def read_manifest(folder: Path) -> dict:
@@ -110,9 +117,35 @@ def read_manifest(folder: Path) -> dict:
     OSError
         When it cannot be read.
     ValueError
-        When it is not a JSON object (``json.JSONDecodeError`` is a ``ValueError``).
+        When it is not a JSON object, or nested too deep to parse
+        (``json.JSONDecodeError`` is a ``ValueError``).
     """
-    data = json.loads((Path(folder) / NAME).read_bytes())
+    return parse_manifest((Path(folder) / NAME).read_bytes())
+
+
+def parse_manifest(raw: bytes) -> dict:
+    """Parse the bytes of ``manifest.json`` (see :func:`read_manifest` for the errors)."""
+    try:
+        data = json.loads(raw)
+    except RecursionError:
+        raise ValueError("nested too deep") from None
     if not isinstance(data, dict):
         raise ValueError("not a JSON object")
     return data
+
+
+def form_difference(raw: bytes, manifest: dict) -> int | None:
+    """First line (1-based) where the bytes ``raw`` differ from :func:`render` of what they parse to.
+
+    ``None`` when ``raw`` is exactly the written form. A manifest that cannot
+    be rendered (a NaN, a value nested too deep) differs at line 1.
+    """
+    try:
+        want = render(manifest)
+    except (ValueError, TypeError, RecursionError):
+        return 1
+    if raw == want:
+        return None
+    n = min(len(raw), len(want))
+    first = next((i for i in range(n) if raw[i] != want[i]), n)
+    return raw[:first].count(b"\n") + 1

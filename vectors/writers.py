@@ -273,7 +273,9 @@ def parse_fixed(data: bytes, fmt: str, bits: int, first_line: int = 1) -> np.nda
     """
     width = line_bytes(fmt, bits)
     if len(data) % width:
-        raise ParseError(first_line + len(data) // width, f"not a line of {width - 1} digits and a newline")
+        whole = len(data) - len(data) % width
+        parse_fixed(data[:whole], fmt, bits, first_line)  # a bad line before the short tail is the first finding
+        raise ParseError(first_line + whole // width, f"not a line of {width - 1} digits and a newline")
     m = np.frombuffer(data, dtype=np.uint8).reshape(-1, width)
     bad_nl = m[:, -1] != _NEWLINE
     if fmt == "hex":
