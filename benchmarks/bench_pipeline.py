@@ -5,6 +5,9 @@
   ``numpy.cumsum`` of the same int64 array, measured alternately in the same
   run; the best of several repetitions of each (target 5).
 - ``fast_model_rate``: samples per second of that run (no target).
+- ``os_fast_model_time_over_cumsum_1e6`` and ``..._1e7``: the same ratio for
+  an OS block (16-bit input, R = 16, G = 2, rank 24 of 32, frames of 4096)
+  on 10^6 and 10^7 samples (target 10).
 - ``structural_model_rate``: samples per second of the cycle-stepped
   structural model on 20,000 samples (no target).
 - ``chunked_peak_memory_100M``: peak resident memory (``VmHWM``) of a child
@@ -37,6 +40,11 @@ SPEC = {
     "fixed": {"input_bits": 16},
     "stream": {"frame_length": 4096},
 }
+OS_SPEC = {
+    "detector": {"kind": "os", "ref_cells_per_side": 16, "guard_cells_per_side": 2, "rank": 24, "alpha": 5.0},
+    "fixed": {"input_bits": 16},
+    "stream": {"frame_length": 4096},
+}
 RATIO_SAMPLES = 10_000_000
 STRUCT_SAMPLES = 20_000
 MEMORY_SAMPLES = int(os.environ.get("CFARVEC_BENCH_SAMPLES", 100_000_000))
@@ -56,9 +64,10 @@ def stimulus(rng, n, frame, offset=0):
     return x, last
 
 
-def ratio_to_cumsum():
-    spec = spec_from_dict(SPEC)
-    x, last = stimulus(np.random.default_rng(1), RATIO_SAMPLES, 4096)
+def _best_times(spec_data, n):
+    """Best of REPEATS for run_fast and for one numpy.cumsum of the same int64 samples, alternated."""
+    spec = spec_from_dict(spec_data)
+    x, last = stimulus(np.random.default_rng(1), n, 4096)
     last[-1] = True  # the final, shorter frame
     fast, base = [], []
     for _ in range(REPEATS):  # alternate, so that both see the same machine load
@@ -68,8 +77,19 @@ def ratio_to_cumsum():
         t = time.perf_counter()
         run_fast(spec, x, last)
         fast.append(time.perf_counter() - t)
-    emit("fast_model_time_over_cumsum", round(min(fast) / min(base), 2), "ratio", 5, "lower")
-    emit("fast_model_rate", round(RATIO_SAMPLES / min(fast)), "samples/s", None, "higher")
+    return min(fast), min(base)
+
+
+def ratio_to_cumsum():
+    fast, base = _best_times(SPEC, RATIO_SAMPLES)
+    emit("fast_model_time_over_cumsum", round(fast / base, 2), "ratio", 5, "lower")
+    emit("fast_model_rate", round(RATIO_SAMPLES / fast), "samples/s", None, "higher")
+
+
+def os_ratio_to_cumsum():
+    for n, name in ((1_000_000, "1e6"), (10_000_000, "1e7")):
+        fast, base = _best_times(OS_SPEC, n)
+        emit(f"os_fast_model_time_over_cumsum_{name}", round(fast / base, 2), "ratio", 10, "lower")
 
 
 def structural_rate():
@@ -132,4 +152,5 @@ if __name__ == "__main__":
     else:
         peak_memory()  # first, while this process is still small
         ratio_to_cumsum()
+        os_ratio_to_cumsum()
         structural_rate()

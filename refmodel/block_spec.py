@@ -217,6 +217,19 @@ class BlockSpec:
         return self.statistic_bits + self.alpha_bits
 
     @property
+    def threshold_max(self) -> int:
+        """``T_max`` of ``docs/bit-true.md`` section 6: no threshold before overflow handling exceeds it.
+
+        ``T0`` at the largest statistic; with ``truncate_partials`` the sum of
+        the positive NAF digits' truncated terms ``(S_max << p) >> d`` there
+        (the negative digits only subtract). The default ``threshold_bits`` is
+        ``max(1, bitlen(T_max))``.
+        """
+        if self.truncate_partials:
+            return sum((self.statistic_max << p) >> self.drop_bits for sgn, p in self.alpha_digits if sgn > 0)
+        return int(scale_product(self.statistic_max, self.alpha_int, self.drop_bits, self.rounding))
+
+    @property
     def realised_alpha(self) -> float:
         """The threshold multiplier (alpha) the quantised constant realises: ``A * divisor / 2**(F_A + s)``."""
         return self.alpha_int * self.mean_divisor / 2.0 ** self.product_frac_bits
@@ -425,12 +438,7 @@ def spec_from_dict(data: Mapping[str, Any], source: str | None = None) -> BlockS
     require(spec.product_bits <= MAX_PRODUCT_BITS, "fixed.alpha_frac_bits",
             f"product S*A would be {spec.product_bits} bits", f"a format whose product fits {MAX_PRODUCT_BITS} bits")
     # Automatic threshold width (docs/bit-true.md section 6): holds every threshold, so nothing saturates.
-    if trunc:
-        # Each positive digit's truncated term at S_max; negative digits only subtract.
-        t_max = sum((spec.statistic_max << p) >> spec.drop_bits for sgn, p in spec.alpha_digits if sgn > 0)
-    else:
-        t_max = scale_product(spec.statistic_max, spec.alpha_int, spec.drop_bits, rounding)
-    auto_t = max(1, int(t_max).bit_length())
+    auto_t = max(1, spec.threshold_max.bit_length())
     w_t = fx["threshold_bits"]
     w_t = auto_t if w_t is None else integer("fixed.threshold_bits", w_t, 1, 62)
     require(w_in + w_t + 3 <= MAX_WORD_BITS, "fixed.threshold_bits",

@@ -20,9 +20,13 @@ from a few additions of shifted copies (sums of 2, 4, 8, ... cells), or for
 long sides from one cumulative sum per row and one difference [2]_. The
 arithmetic is unsigned 64-bit, which wraps modulo ``2**64``; a difference of
 two wrapped prefix sums is still exact whenever the true value fits [3]_, and
-every product fits 62 bits (the block spec checks it). OS gathers the ``2R``
-reference cells of each CUT from a strided window view and selects the
-``k``-th smallest with :meth:`numpy.ndarray.partition`.
+every product fits 62 bits (the block spec checks it). OS selects the
+``k``-th smallest of the ``2R`` reference cells with a pruned selection
+network of element-wise minima and maxima shared along the stream
+(:mod:`refmodel.fixedpoint.selection_network`), on cells of the narrowest
+unsigned type that holds the input; for very long sides (a network of more
+than ``selection_network.MAX_NODES`` steps) it gathers the cells from a
+strided window view and uses :meth:`numpy.ndarray.partition`.
 
 References
 ----------
@@ -45,6 +49,7 @@ from numpy.lib.stride_tricks import sliding_window_view
 from ..block_spec import BlockSpec
 from ..errors import SpecError, require
 from .fixed_arith import round_shift, scale_product
+from .selection_network import MAX_NODES, selection_plan
 from .word_format import FIELDS, PipelineOutput
 
 #: Cells per block of work: 2**16 int64 values (512 KiB) stay in a 1 MiB L2 cache.
@@ -53,6 +58,13 @@ BLOCK_CELLS = 1 << 16
 MAX_RUNS = 64
 #: Longest frame kept whole under the ``circular`` policy (``stream.frame_length`` limit).
 MAX_CIRCULAR_FRAME = 1 << 24
+#: OS selection network: CUTs per block at most, and bytes of work arrays per block at most.
+OS_BLOCK_CUTS = 1 << 16
+OS_WORK_BYTES = 1 << 22
+#: Bound OS kernels kept for reuse (each holds its block's work arrays; results are copied out at once, so
+#: pipelines in one thread may share them).
+MAX_KERNELS = 8
+_KERNELS: dict = {}
 
 
 class FastPipeline:
@@ -86,9 +98,9 @@ class FastPipeline:
         self._premultiplied = spec.kind != "os" and not spec.truncate_partials
         self._a, self._d = spec.alpha_int, spec.drop_bits  # alpha_int is recomputed on each access
         self._top = (1 << spec.threshold_bits) - 1
-        self._overflow_possible = _largest_t0(spec) > self._top
-        cells_per_cut = 2 * spec.ref_per_side if spec.kind == "os" else 1
-        self._block = max(BLOCK_CELLS // cells_per_cut, 4 * self._h, 64)
+        self._overflow_possible = spec.threshold_max > self._top
+        self._select = _OsSelection(spec) if spec.kind == "os" else None
+        self._block = max(self._select.block if self._select else BLOCK_CELLS, 4 * self._h, 64)
         # Work space reused from block to block: the window cells and their partial sums.
         self._cells_buf, self._work = [np.zeros(0, np.uint64)], [np.zeros(0, np.uint64)]
         self._tail = np.zeros(0, dtype=np.int64)  # frame indices [seen - len(tail), seen) of the open frame
@@ -279,10 +291,11 @@ class FastPipeline:
         spec = self.spec
         cut, thr, det, valid, last = dst
         np.copyto(cut, src[:, n0 - f0 : n0 - f0 + m])
-        z = self._cells(src, f0, n0, m, length, self._a if self._premultiplied else 1)
+        dest = self._select.destination(src.shape[0], m) if self._select else None
+        z = self._cells(src, f0, n0, m, length, self._a if self._premultiplied else 1, dest)
         s = thr.view(np.uint64)
         lag_edge, lead_edge = _edges(n0, m, length, self._h)
-        _statistic_into(spec, z, m, lag_edge, lead_edge, s, self._work)
+        _statistic_into(spec, z, m, lag_edge, lead_edge, s, self._work, self._select)
         # Product, rounding (section 5) and overflow (section 6), in place.
         d = self._d
         if spec.truncate_partials:
@@ -315,29 +328,40 @@ class FastPipeline:
         if length is not None and n0 + m == length:
             last[:, -1] = True
 
-    def _cells(self, src, f0, n0, m, length, scale) -> np.ndarray:
+    def _cells(self, src, f0, n0, m, length, scale, z=None) -> np.ndarray:
         """The cells the windows of CUTs ``n0 .. n0+m-1`` see, times ``scale``.
 
         Returns an unsigned array of shape (rows, m + 2H + 1): column 0 is 0
         (so that a cumulative sum starts from 0) and column ``1 + j`` holds frame
         index ``n0 - H + j``, 0 outside the frame or the wrapped sample under
-        ``circular`` (``docs/bit-true.md`` section 2).
+        ``circular`` (``docs/bit-true.md`` section 2). It is ``z`` when given
+        (any unsigned type that holds the cells; ``scale`` must then be 1),
+        else a reused uint64 buffer.
         """
         h = self._h
         rows = src.shape[0]
-        z = _take(self._cells_buf, (rows, m + 2 * h + 1))
-        zi = z.view(np.int64)
+        if z is None:
+            z = _take(self._cells_buf, (rows, m + 2 * h + 1))
+            zi = z.view(np.int64)
+
+            def put(dst, part):
+                np.multiply(part, np.int64(scale), out=dst)
+        else:
+            zi = z
+
+            def put(dst, part):
+                np.copyto(dst, part, casting="unsafe")
         first = n0 - h  # frame index of column 1
         lo = max(first, 0)
         hi = n0 + m + h if length is None else min(n0 + m + h, length)
         zi[:, : 1 + lo - first] = 0
         zi[:, 1 + hi - first :] = 0
-        np.multiply(src[:, lo - f0 : hi - f0], np.int64(scale), out=zi[:, 1 + lo - first : 1 + hi - first])
+        put(zi[:, 1 + lo - first : 1 + hi - first], src[:, lo - f0 : hi - f0])
         if self._circular:  # src holds the whole frame (f0 = 0): the cells beyond its ends wrap
             if first < 0:
-                np.multiply(src[:, length + first :], np.int64(scale), out=zi[:, 1 : 1 - first])
+                put(zi[:, 1 : 1 - first], src[:, length + first :])
             if hi < n0 + m + h:
-                np.multiply(src[:, : n0 + m + h - length], np.int64(scale), out=zi[:, 1 + hi - first :])
+                put(zi[:, 1 + hi - first :], src[:, : n0 + m + h - length])
         return z
 
 
@@ -356,25 +380,77 @@ def _take(buf: list, shape: tuple[int, int]) -> np.ndarray:
     return buf[0][:n].reshape(shape)
 
 
+class _OsSelection:
+    """The OS statistic's ``k``-th smallest of the ``2R`` reference cells, block by block.
+
+    A selection network (:mod:`refmodel.fixedpoint.selection_network`) run
+    over the rows of a block laid end to end (``m + 2H + 1`` cells a row, so
+    one long run of ``numpy.minimum`` / ``numpy.maximum`` calls covers every
+    row; the few positions that straddle two rows are computed and dropped),
+    with one bound kernel per block shape (a few kept); or, when the network
+    would exceed ``MAX_NODES`` steps, a partition of the gathered cells.
+    """
+
+    def __init__(self, spec: BlockSpec):
+        r, g, k = spec.ref_per_side, spec.guard_per_side, spec.rank
+        self.r, self.lead_at, self.k, self.h = r, r + 2 * g + 1, k, r + g
+        self.dtype = next(np.dtype(t) for t in (np.uint8, np.uint16, np.uint32) if np.dtype(t).itemsize * 8
+                          >= spec.input_bits)
+        plan = selection_plan(r, g, k)
+        self.plan = plan if plan.nodes <= MAX_NODES else None
+        if self.plan is None:
+            self.block = max(BLOCK_CELLS // (2 * r), 1)
+        else:
+            per_cut = max(1, plan.buffers) * self.dtype.itemsize
+            self.block = max(min(OS_BLOCK_CUTS, OS_WORK_BYTES // per_cut - plan.span), 64)
+        self._key = (r, g, k, self.dtype.str)
+        self._kern = None
+
+    def destination(self, rows: int, m: int) -> np.ndarray | None:
+        """Where :meth:`FastPipeline._cells` should put the cells: ``(rows, m + 2H + 1)`` in the narrow type."""
+        width = m + 2 * self.h + 1
+        if self.plan is None:
+            return np.empty((rows, width), dtype=self.dtype)
+        key = self._key + (rows, m)
+        kern = _KERNELS.pop(key, None)
+        if kern is None:
+            # Positions p = 1 + row * width + j: CUT j of each row (column 0 of a row is the padding).
+            kern = self.plan.kernel(1, rows * width + 1, self.dtype)
+        _KERNELS[key] = kern  # most recently used last
+        while len(_KERNELS) > MAX_KERNELS:
+            _KERNELS.pop(next(iter(_KERNELS)))
+        self._kern, self._rows, self._m = kern, rows, m
+        return kern.cells[0, : rows * width].reshape(rows, width)
+
+    def kth(self, z: np.ndarray) -> np.ndarray:
+        """The ``k``-th smallest reference cell at each CUT, ``(rows, m)``, from the cells ``z``."""
+        m = z.shape[1] - 2 * self.h - 1
+        if self.plan is not None:
+            out = self._kern.run()
+            return out[0, 1 : 1 + z.size].reshape(z.shape)[:, :m]
+        win = sliding_window_view(z[:, 1:], 2 * self.h + 1, axis=1)[:, :m]
+        r, at = self.r, self.lead_at
+        picked = win[:, :, np.r_[0:r, at : at + r]]  # a copy, partitioned in place
+        picked.partition(self.k - 1, axis=-1)
+        return picked[..., self.k - 1]
+
+
 def _statistic_into(spec: BlockSpec, z: np.ndarray, m: int, lag_edge: slice, lead_edge: slice, s: np.ndarray,
-                    work: list) -> None:
+                    work: list, select: _OsSelection | None) -> None:
     """The statistic S of ``docs/bit-true.md`` section 3 into ``s`` (rows, m), from the cells ``z``.
 
     ``z`` is consumed (reused as work space). Scaling of ``z`` carries over
     to ``s``: max, min, sum and order statistics commute with a positive factor.
+    ``select`` computes the OS order statistic (None for the other kinds).
     """
     r, g = spec.ref_per_side, spec.guard_per_side
     h = r + g
     lead_at = h + g + 1  # column offset of the leading side's first cell from the lagging side's
     one_sided = spec.edge == "one-sided"
     if spec.kind == "os":
-        # Samples fit 32 bits; numpy selects fastest on 32-bit cells (measured: several times uint64 or uint16).
-        win = sliding_window_view(z[:, 1:].astype(np.uint32), 2 * h + 1, axis=1)  # (rows, m, W), a view
-        k = spec.rank
-        cells = win[:, :, np.r_[0:r, lead_at : lead_at + r]]  # a copy, partitioned in place
-        cells.partition(k - 1, axis=-1)
-        s[...] = cells[..., k - 1]
+        s[...] = select.kth(z)
         if one_sided:
+            win = sliding_window_view(z[:, 1:], 2 * h + 1, axis=1)[:, :m]  # (rows, m, W), a view
             kh = spec.os_side_rank
             for side, cols in ((lag_edge, slice(lead_at, lead_at + r)), (lead_edge, slice(0, r))):
                 if side.start < side.stop:
@@ -426,14 +502,6 @@ def _box_sums(z: np.ndarray, r: int, work: list) -> np.ndarray:
                 np.add(acc[:, :width], cur[:, covered : covered + width], out=acc[:, :width])
             covered += span
     return acc[:, : n - r]
-
-
-def _largest_t0(spec: BlockSpec) -> int:
-    """An upper bound on T0 (the threshold before overflow handling), reached at full-scale input."""
-    if spec.truncate_partials:
-        positive = sum(1 << p for sign, p in spec.alpha_digits if sign > 0)
-        return (spec.statistic_max * positive) >> spec.drop_bits
-    return int(scale_product(spec.statistic_max, spec.alpha_int, spec.drop_bits, spec.rounding))
 
 
 def _empty(n: int) -> PipelineOutput:
@@ -493,6 +561,6 @@ def statistic(spec: BlockSpec, samples) -> np.ndarray:
     length = x.size
     pipe._check_lengths(length, np.zeros(0, dtype=np.int64), length)
     s = np.empty((1, length), dtype=np.uint64)
-    z = pipe._cells(x[None, :], 0, 0, length, length, 1)
-    _statistic_into(spec, z, length, *_edges(0, length, length, pipe._h), s, pipe._work)
+    z = pipe._cells(x[None, :], 0, 0, length, length, 1, pipe._select.destination(1, length) if pipe._select else None)
+    _statistic_into(spec, z, length, *_edges(0, length, length, pipe._h), s, pipe._work, pipe._select)
     return s[0].view(np.int64)
