@@ -7,7 +7,7 @@ The cell under test (CUT) is declared a detection when its power exceeds
 cells (``N/2`` on each side of the guard cells around the CUT):
 
 =======  ===================================================================
-kind     noise estimate ``Z`` that the threshold factor (alpha) multiplies
+kind     noise estimate ``Z`` that the threshold multiplier (alpha) multiplies
 =======  ===================================================================
 ``ca``   mean of all ``N`` reference cells
 ``go``   the greater of (mean of the lagging half, mean of the leading half)
@@ -57,14 +57,14 @@ References
 from __future__ import annotations
 
 import math
-import operator
 from dataclasses import dataclass, field
 from typing import Iterable
 
 import numpy as np
 from scipy import special
 
-from .errors import SpecError
+from .errors import SpecError, require
+from .spec_fields import choice, integer, number
 
 # scipy.integrate, scipy.optimize and scipy.stats are imported inside the functions that
 # use them: together they take over a second to import, and the command line should
@@ -88,6 +88,14 @@ __all__ = [
 #: Detector kinds, in the order the command line lists them.
 KINDS = ("ca", "go", "so", "os")
 
+#: What alpha multiplies, per kind (n: total reference cells, h = n/2 per side, k: rank).
+_RULES = {
+    "ca": "mean of all {n} reference cells",
+    "go": "max(mean of {h} lagging cells, mean of {h} leading cells)",
+    "so": "min(mean of {h} lagging cells, mean of {h} leading cells)",
+    "os": "rank-{k} (k-th smallest) of {n} reference cells",
+}
+
 #: Largest total number of reference cells accepted (keeps every computation bounded).
 MAX_REF_CELLS = 1_000_000
 
@@ -105,94 +113,67 @@ _QUAD_EPSREL = 1e-10
 _SNR_DB_LIMITS = (-200.0, 300.0)
 
 
+#: Parameter descriptions shared by the public functions' docstrings (filled in by _shared_params).
+_PARAMS = {
+    "{kind_n_ref}": """kind : {"ca", "go", "so", "os"}
+        Detector: cell averaging, greatest-of, smallest-of, ordered statistic.
+    n_ref : int
+        Total number of reference cells N (both sides together; even for
+        ``go`` and ``so``, which use N/2 per side).""",
+    "{rank}": """rank : int, optional
+        Rank k (1..N) of the order statistic; required for ``os`` only.""",
+    "{swerling}": """swerling : {0, 1}
+        Target model: 0 non-fluctuating; 1 Swerling I (Rayleigh amplitude,
+        constant over the single look).""",
+    "{brent}": """R. P. Brent, *Algorithms for Minimization without Derivatives*,
+       Prentice-Hall, 1973, ch. 4.""",
+}
+
+
+def _shared_params(f):
+    """Fill the shared parameter descriptions of :data:`_PARAMS` into ``f``'s docstring."""
+    for key, text in _PARAMS.items():
+        if f.__doc__:  # None under python -OO
+            f.__doc__ = f.__doc__.replace(key, text)
+    return f
+
+
 # --------------------------------------------------------------------------
-# Validation
+# Validation (the shared value checks of refmodel.spec_fields, named after the CLI options)
 # --------------------------------------------------------------------------
-
-
-def _check_kind(kind: str) -> str:
-    if not isinstance(kind, str) or kind.lower() not in KINDS:
-        raise SpecError("--detector", f"got {kind!r}", "one of " + ", ".join(KINDS))
-    return kind.lower()
-
-
-def _check_int(value, name: str, allowed: str) -> int:
-    if isinstance(value, bool):
-        raise SpecError(name, f"got {value!r}", allowed)
-    try:
-        return operator.index(value)
-    except TypeError:
-        raise SpecError(name, f"got {value!r}", allowed) from None
-
-
-def _check_real(value, name: str, allowed: str) -> float:
-    if isinstance(value, bool):
-        raise SpecError(name, f"got {value!r}", allowed)
-    try:
-        x = float(value)
-    except (TypeError, ValueError):
-        raise SpecError(name, f"got {value!r}", allowed) from None
-    if not math.isfinite(x):
-        raise SpecError(name, f"got {value!r}", allowed)
-    return x
 
 
 def _check_geometry(kind: str, n_ref, rank) -> tuple[str, int, int | None]:
     """Validate detector kind, total reference cells and OS rank."""
-    kind = _check_kind(kind)
-    allowed_n = f"an integer 1..{MAX_REF_CELLS}"
-    if kind in ("go", "so"):
-        allowed_n = f"an even integer 2..{MAX_REF_CELLS} (N/2 cells per side)"
-    n = _check_int(n_ref, "--ref-cells", allowed_n)
-    if not 1 <= n <= MAX_REF_CELLS:
-        raise SpecError("--ref-cells", f"got {n}", allowed_n)
-    if kind in ("go", "so") and n % 2:
-        raise SpecError("--ref-cells", f"got odd {n} for detector {kind}", allowed_n)
-    if kind == "os":
-        allowed_k = f"an integer 1..{n} (1..--ref-cells)"
-        if rank is None:
-            raise SpecError("--rank", "missing for detector os", allowed_k)
-        k = _check_int(rank, "--rank", allowed_k)
-        if not 1 <= k <= n:
-            raise SpecError("--rank", f"got {k}", allowed_k)
-        return kind, n, k
-    if rank is not None:
-        raise SpecError("--rank", f"given for detector {kind}", "only with detector os")
-    return kind, n, None
+    kind = choice("--detector", kind, KINDS)
+    n = integer("--ref-cells", n_ref, 1, MAX_REF_CELLS)
+    require(kind not in ("go", "so") or n % 2 == 0, "--ref-cells", f"got odd {n} for detector {kind}",
+            f"an even integer 2..{MAX_REF_CELLS} (N/2 cells per side)")
+    if kind != "os":
+        require(rank is None, "--rank", f"given for detector {kind}", "only with detector os")
+        return kind, n, None
+    require(rank is not None, "--rank", "missing for detector os", f"an integer 1..{n} (1..--ref-cells)")
+    return kind, n, integer("--rank", rank, 1, n)
 
 
 def _check_alpha(alpha) -> float:
-    a = _check_real(alpha, "--alpha", "a finite number > 0")
-    if not a > 0.0:
-        raise SpecError("--alpha", f"got {alpha!r}", "a finite number > 0")
-    return a
+    return number("--alpha", alpha, 0.0, open_lo=True)
 
 
 def _check_pfa(pfa) -> float:
-    p = _check_real(pfa, "--pfa", "a number in (0, 1)")
-    if not 0.0 < p < 1.0:
-        raise SpecError("--pfa", f"got {pfa!r}", "a number in (0, 1)")
-    return p
+    return number("--pfa", pfa, 0.0, 1.0, open_lo=True, open_hi=True)
 
 
 def _check_swerling(swerling) -> int:
-    if swerling in (0, 1) and not isinstance(swerling, (bool, float)):
-        return int(swerling)
-    if isinstance(swerling, str) and swerling.strip() in ("0", "1"):
-        return int(swerling)
-    raise SpecError("--swerling", f"got {swerling!r}", "0 or 1")
+    return integer("--swerling", swerling, 0, 1, text=True)
 
 
 def _check_snr_db(snr_db) -> float:
-    return _check_real(snr_db, "--snr-db", "a finite number of dB")
+    return number("--snr-db", snr_db, unit="of dB")
 
 
 def _check_pd(pd_target, pfa: float) -> float:
-    allowed = f"a number in (Pfa, 1) = ({pfa:.6g}, 1)"
-    p = _check_real(pd_target, "--pd", allowed)
-    if not pfa < p < 1.0:
-        raise SpecError("--pd", f"got {pd_target!r}", allowed)
-    return p
+    return number("--pd", pd_target, pfa, 1.0, open_lo=True, open_hi=True)
 
 
 # --------------------------------------------------------------------------
@@ -229,21 +210,17 @@ def _log_pfa(kind: str, n: int, alpha: float, rank: int | None) -> float:
     )
 
 
+@_shared_params
 def pfa_from_alpha(kind: str, n_ref: int, alpha: float, rank: int | None = None) -> float:
-    """False-alarm probability of a CFAR detector for a given threshold factor.
+    """False-alarm probability of a CFAR detector for a given threshold multiplier (alpha).
 
     Parameters
     ----------
-    kind : {"ca", "go", "so", "os"}
-        Detector: cell averaging, greatest-of, smallest-of, ordered statistic.
-    n_ref : int
-        Total number of reference cells N (both sides together; even for
-        ``go`` and ``so``, which use N/2 per side).
+    {kind_n_ref}
     alpha : float
-        Threshold factor (alpha), finite and > 0. The threshold is
+        Threshold multiplier (alpha), finite and > 0. The threshold is
         ``alpha * Z`` with ``Z`` as listed in the module docstring.
-    rank : int, optional
-        Rank k (1..N) of the order statistic; required for ``os`` only.
+    {rank}
 
     Returns
     -------
@@ -280,19 +257,16 @@ def pfa_from_alpha(kind: str, n_ref: int, alpha: float, rank: int | None = None)
     return math.exp(_log_pfa(kind, n, a, k))
 
 
+@_shared_params
 def alpha_from_pfa(kind: str, n_ref: int, pfa: float, rank: int | None = None) -> float:
-    """Threshold factor (alpha) that gives a wanted false-alarm probability.
+    """Threshold multiplier (alpha) that gives a wanted false-alarm probability.
 
     Parameters
     ----------
-    kind : {"ca", "go", "so", "os"}
-        Detector kind.
-    n_ref : int
-        Total number of reference cells N.
+    {kind_n_ref}
     pfa : float
         Wanted Pfa, in (0, 1).
-    rank : int, optional
-        Rank k (1..N), ``os`` only.
+    {rank}
 
     Returns
     -------
@@ -311,8 +285,7 @@ def alpha_from_pfa(kind: str, n_ref: int, pfa: float, rank: int | None = None) -
     References
     ----------
     .. [1] Richards, Fundamentals of Radar Signal Processing, 2005, ch. 7.
-    .. [2] R. P. Brent, *Algorithms for Minimization without Derivatives*,
-       Prentice-Hall, 1973, ch. 4.
+    .. [2] {brent}
     """
     kind, n, k = _check_geometry(kind, n_ref, rank)
     p = _check_pfa(pfa)
@@ -341,17 +314,14 @@ def _alpha_from_pfa(kind: str, n: int, pfa: float, k: int | None) -> float:
     return math.exp(u)
 
 
+@_shared_params
 def threshold_rule(kind: str, n_ref: int, rank: int | None = None) -> str:
     """One-line description of what alpha multiplies, e.g. for reports.
 
     Parameters
     ----------
-    kind : {"ca", "go", "so", "os"}
-        Detector kind.
-    n_ref : int
-        Total number of reference cells N.
-    rank : int, optional
-        Rank k, ``os`` only.
+    {kind_n_ref}
+    {rank}
 
     Returns
     -------
@@ -359,13 +329,7 @@ def threshold_rule(kind: str, n_ref: int, rank: int | None = None) -> str:
         E.g. ``"alpha * mean of all 32 reference cells"``.
     """
     kind, n, k = _check_geometry(kind, n_ref, rank)
-    if kind == "ca":
-        return f"alpha * mean of all {n} reference cells"
-    if kind == "go":
-        return f"alpha * max(mean of {n // 2} lagging cells, mean of {n // 2} leading cells)"
-    if kind == "so":
-        return f"alpha * min(mean of {n // 2} lagging cells, mean of {n // 2} leading cells)"
-    return f"alpha * rank-{k} (k-th smallest) of {n} reference cells"
+    return "alpha * " + _RULES[kind].format(n=n, h=n // 2, k=k)
 
 
 # --------------------------------------------------------------------------
@@ -400,19 +364,16 @@ def _estimate_ppf(kind: str, n: int, k: int | None, q):
     return -np.log1p(-special.betaincinv(k, n - k + 1, q))
 
 
+@_shared_params
 def noise_estimate_cdf(kind: str, n_ref: int, z: float, rank: int | None = None) -> float:
     """Cumulative distribution of the noise estimate that alpha multiplies.
 
     Parameters
     ----------
-    kind : {"ca", "go", "so", "os"}
-        Detector kind.
-    n_ref : int
-        Total number of reference cells N.
+    {kind_n_ref}
     z : float
         Level, in units of the mean noise power per cell.
-    rank : int, optional
-        Rank k, ``os`` only.
+    {rank}
 
     Returns
     -------
@@ -435,7 +396,7 @@ def noise_estimate_cdf(kind: str, n_ref: int, z: float, rank: int | None = None)
     .. [1] David & Nagaraja, Order Statistics, 3rd ed., 2003, sec. 2.1.
     """
     kind, n, k = _check_geometry(kind, n_ref, rank)
-    zz = _check_real(z, "z", "a finite number")
+    zz = number("z", z)
     return float(_estimate_cdf(kind, n, k, zz))
 
 
@@ -490,25 +451,20 @@ def _pd(kind: str, n: int, k: int | None, alpha: float, snr: float, swerling: in
     return _pd_sw0(kind, n, k, alpha, snr)
 
 
+@_shared_params
 def pd(kind: str, n_ref: int, alpha: float, snr_db: float, swerling: int, rank: int | None = None) -> float:
     """Detection probability of a CFAR detector.
 
     Parameters
     ----------
-    kind : {"ca", "go", "so", "os"}
-        Detector kind.
-    n_ref : int
-        Total number of reference cells N.
+    {kind_n_ref}
     alpha : float
-        Threshold factor (alpha) > 0.
+        Threshold multiplier (alpha) > 0.
     snr_db : float
         Per-cell signal-to-noise power ratio of the target in the CUT, dB
         (finite). Reference cells hold noise only.
-    swerling : {0, 1}
-        0: non-fluctuating target; 1: Swerling I (Rayleigh amplitude,
-        constant over the single look).
-    rank : int, optional
-        Rank k, ``os`` only.
+    {swerling}
+    {rank}
 
     Returns
     -------
@@ -552,6 +508,7 @@ def _ideal_pd(pfa: float, snr: float, swerling: int) -> float:
     return float(stats.ncx2.sf(2.0 * t, 2, 2.0 * snr)) if snr > 0 else pfa
 
 
+@_shared_params
 def ideal_pd(pfa: float, snr_db: float, swerling: int) -> float:
     """Detection probability of the ideal fixed-threshold detector (noise power known).
 
@@ -562,8 +519,7 @@ def ideal_pd(pfa: float, snr_db: float, swerling: int) -> float:
         times the noise power.
     snr_db : float
         Per-cell SNR in dB.
-    swerling : {0, 1}
-        Target model.
+    {swerling}
 
     Returns
     -------
@@ -614,6 +570,15 @@ def _solve_snr_db(pd_of_snr, target: float) -> float:
     return optimize.brentq(f, lo, hi, xtol=1e-9, rtol=1e-12, maxiter=200)
 
 
+def _required_snr_db(kind: str, n: int, k: int | None, alpha: float, target: float, sw: int) -> float:
+    return _solve_snr_db(lambda s: _pd(kind, n, k, alpha, s, sw), target)
+
+
+def _ideal_required_snr_db(pfa: float, target: float, sw: int) -> float:
+    return _solve_snr_db(lambda s: _ideal_pd(pfa, s, sw), target)
+
+
+@_shared_params
 def required_snr_db(
     kind: str, n_ref: int, pfa: float, pd: float, swerling: int, rank: int | None = None
 ) -> float:
@@ -621,19 +586,14 @@ def required_snr_db(
 
     Parameters
     ----------
-    kind : {"ca", "go", "so", "os"}
-        Detector kind.
-    n_ref : int
-        Total number of reference cells N.
+    {kind_n_ref}
     pfa : float
         Design false-alarm probability in (0, 1); alpha follows from
         :func:`alpha_from_pfa`.
     pd : float
         Wanted detection probability in (pfa, 1).
-    swerling : {0, 1}
-        Target model.
-    rank : int, optional
-        Rank k, ``os`` only.
+    {swerling}
+    {rank}
 
     Returns
     -------
@@ -647,17 +607,14 @@ def required_snr_db(
 
     References
     ----------
-    .. [1] R. P. Brent, *Algorithms for Minimization without Derivatives*,
-       Prentice-Hall, 1973, ch. 4.
+    .. [1] {brent}
     """
     kind, n, k = _check_geometry(kind, n_ref, rank)
     p = _check_pfa(pfa)
-    target = _check_pd(pd, p)
-    sw = _check_swerling(swerling)
-    alpha = _alpha_from_pfa(kind, n, p, k)
-    return _solve_snr_db(lambda s: _pd(kind, n, k, alpha, s, sw), target)
+    return _required_snr_db(kind, n, k, _alpha_from_pfa(kind, n, p, k), _check_pd(pd, p), _check_swerling(swerling))
 
 
+@_shared_params
 def ideal_required_snr_db(pfa: float, pd: float, swerling: int) -> float:
     """SNR (dB) the ideal fixed-threshold detector needs to reach ``pd``.
 
@@ -667,8 +624,7 @@ def ideal_required_snr_db(pfa: float, pd: float, swerling: int) -> float:
         False-alarm probability in (0, 1).
     pd : float
         Wanted detection probability in (pfa, 1).
-    swerling : {0, 1}
-        Target model.
+    {swerling}
 
     Returns
     -------
@@ -677,32 +633,25 @@ def ideal_required_snr_db(pfa: float, pd: float, swerling: int) -> float:
 
     References
     ----------
-    .. [1] R. P. Brent, *Algorithms for Minimization without Derivatives*,
-       Prentice-Hall, 1973, ch. 4.
+    .. [1] {brent}
     """
     p = _check_pfa(pfa)
-    target = _check_pd(pd, p)
-    sw = _check_swerling(swerling)
-    return _solve_snr_db(lambda s: _ideal_pd(p, s, sw), target)
+    return _ideal_required_snr_db(p, _check_pd(pd, p), _check_swerling(swerling))
 
 
+@_shared_params
 def cfar_loss_db(kind: str, n_ref: int, pfa: float, pd: float, swerling: int, rank: int | None = None) -> float:
     """CFAR loss: extra SNR (dB) the CFAR detector needs over the ideal detector.
 
     Parameters
     ----------
-    kind : {"ca", "go", "so", "os"}
-        Detector kind.
-    n_ref : int
-        Total number of reference cells N.
+    {kind_n_ref}
     pfa : float
         False-alarm probability in (0, 1), the same for both detectors.
     pd : float
         Detection probability in (pfa, 1) at which the SNRs are compared.
-    swerling : {0, 1}
-        Target model.
-    rank : int, optional
-        Rank k, ``os`` only.
+    {swerling}
+    {rank}
 
     Returns
     -------
@@ -768,7 +717,7 @@ class Design:
     rank : int or None
         OS rank k.
     alpha : float
-        Threshold factor (alpha).
+        Threshold multiplier (alpha).
     pfa : float
         False-alarm probability of ``alpha``.
     snr_db : tuple of float
@@ -822,6 +771,7 @@ class Design:
         }
 
 
+@_shared_params
 def design(
     kind: str,
     n_ref: int,
@@ -837,15 +787,11 @@ def design(
 
     Parameters
     ----------
-    kind : {"ca", "go", "so", "os"}
-        Detector kind.
-    n_ref : int
-        Total number of reference cells N.
+    {kind_n_ref}
     pfa, alpha : float
         Give exactly one: the wanted Pfa (alpha is designed) or alpha (its
         Pfa is analysed).
-    rank : int, optional
-        Rank k, ``os`` only.
+    {rank}
     snr_db : iterable of float
         SNRs (dB) at which to report Pd; at least one.
     loss_pd : float
@@ -886,8 +832,8 @@ def design(
     for sw in sws:
         pds = tuple(_pd(kind, n, k, a, _snr_linear(s), sw) for s in snrs)
         ideal = tuple(_ideal_pd(p, _snr_linear(s), sw) for s in snrs)
-        req = _solve_snr_db(lambda s, sw=sw: _pd(kind, n, k, a, s, sw), target)
-        ide = _solve_snr_db(lambda s, sw=sw: _ideal_pd(p, s, sw), target)
+        req = _required_snr_db(kind, n, k, a, target, sw)
+        ide = _ideal_required_snr_db(p, target, sw)
         cases.append(SwerlingCase(sw, pds, ideal, req, ide, req - ide))
     inputs = {
         "detector": kind,
