@@ -1,4 +1,4 @@
-"""``cfarvec design``: threshold factor (alpha), Pfa, Pd and CFAR loss of one detector.
+"""``cfarvec design``: threshold multiplier (alpha), Pfa, Pd and CFAR loss of one detector.
 
 The work is done by :mod:`refmodel.threshold_design`; this module only parses
 options, builds a report dictionary and prints it as text or JSON.
@@ -22,7 +22,7 @@ DEFAULT_SNR_DB = (10.0, 13.0, 16.0)
 DEFAULT_PD = 0.9
 
 _DESCRIPTION = """\
-Design a CFAR threshold factor (alpha) for a wanted false-alarm probability
+Design a CFAR threshold multiplier (alpha) for a wanted false-alarm probability
 (--pfa), or analyse a given alpha (--alpha), for square-law detected
 exponential noise. Reports Pd at the requested SNRs for Swerling 0 and
 Swerling I targets, next to the ideal detector that knows the noise power,
@@ -37,7 +37,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     """Register the ``design`` sub-command; returns its parser (see :mod:`cfarvec.cli`)."""
     p = subparsers.add_parser(
         "design",
-        help="threshold factor (alpha) <-> Pfa, Pd and CFAR loss",
+        help="threshold multiplier (alpha) <-> Pfa, Pd and CFAR loss",
         description=_DESCRIPTION,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
@@ -49,7 +49,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     p.add_argument("--rank", type=int, metavar="K", help="rank K in 1..N of the order statistic (os only)")
     target = p.add_mutually_exclusive_group()
     target.add_argument("--pfa", type=float, metavar="P", help="wanted false-alarm probability, in (0, 1)")
-    target.add_argument("--alpha", type=float, metavar="A", help="given threshold factor, > 0")
+    target.add_argument("--alpha", type=float, metavar="A", help="given threshold multiplier (alpha), > 0")
     p.add_argument(
         "--snr-db",
         type=float,
