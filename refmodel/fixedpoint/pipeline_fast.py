@@ -43,6 +43,8 @@ References
 
 from __future__ import annotations
 
+import threading
+
 import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
 
@@ -61,10 +63,10 @@ MAX_CIRCULAR_FRAME = 1 << 24
 #: OS selection network: CUTs per block at most, and bytes of work arrays per block at most.
 OS_BLOCK_CUTS = 1 << 16
 OS_WORK_BYTES = 1 << 22
-#: Bound OS kernels kept for reuse (each holds its block's work arrays; results are copied out at once, so
-#: pipelines in one thread may share them).
+#: Bound OS kernels kept for reuse, per thread (each holds its block's work arrays; a result is copied out
+#: before the next block, so the pipelines of one thread may share them).
 MAX_KERNELS = 8
-_KERNELS: dict = {}
+_LOCAL = threading.local()
 
 
 class FastPipeline:
@@ -411,15 +413,17 @@ class _OsSelection:
         width = m + 2 * self.h + 1
         if self.plan is None:
             return np.empty((rows, width), dtype=self.dtype)
+        kept = _LOCAL.__dict__.setdefault("kernels", {})
         key = self._key + (rows, m)
-        kern = _KERNELS.pop(key, None)
+        kern = kept.pop(key, None)
         if kern is None:
             # Positions p = 1 + row * width + j: CUT j of each row (column 0 of a row is the padding).
             kern = self.plan.kernel(1, rows * width + 1, self.dtype)
-        _KERNELS[key] = kern  # most recently used last
-        while len(_KERNELS) > MAX_KERNELS:
-            _KERNELS.pop(next(iter(_KERNELS)))
-        self._kern, self._rows, self._m = kern, rows, m
+        if rows * width <= 4 * OS_BLOCK_CUTS:  # keep only block-sized kernels (statistic() may ask for a frame)
+            kept[key] = kern  # most recently used last
+            while len(kept) > MAX_KERNELS:
+                kept.pop(next(iter(kept)))
+        self._kern = kern
         return kern.cells[0, : rows * width].reshape(rows, width)
 
     def kth(self, z: np.ndarray) -> np.ndarray:
