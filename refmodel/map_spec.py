@@ -161,6 +161,63 @@ class MapSpec:
         s = self.slow_fast["slow"]
         return s["length"] + 2 * s["half"]
 
+    @property
+    def stream_window(self) -> tuple[int, int, int, int]:
+        """``(W_s, W_f, H_s, H_f)``: window extent and half extent along the slow and fast stream axes."""
+        w = self.window
+        if self.order == "range-fast":
+            return w.wd, w.wr, w.hd, w.hr
+        return w.wr, w.wd, w.hr, w.hd
+
+    def stream_boxes(self, part: str) -> tuple[tuple[int, int, int, int, int], ...]:
+        """The rectangles of :meth:`Window2D.boxes` as ``(sign, s0, f0, n_s, n_f)`` in stream axes."""
+        boxes = self.window.boxes(part)
+        if self.order == "range-fast":
+            return boxes
+        return tuple((sg, r0, d0, nr, nd) for sg, d0, r0, nd, nr in boxes)
+
+    def stream_member(self, part: str = "all"):
+        """Boolean ``(W_s, W_f)`` mask of the reference cells of ``part`` (``"all"``, ``"lag"``, ``"lead"``)."""
+        import numpy as np
+
+        w = self.window
+        m = w.member()
+        r = np.arange(-w.hr, w.hr + 1)[None, :]
+        if part == "lag":
+            m = m & (r < 0)
+        elif part == "lead":
+            m = m & (r > 0)
+        return m if self.order == "range-fast" else m.T
+
+    def rd_map(self, cells):
+        """One map in stream order (``L_r * L_d`` cells) as an array ``(..., doppler_bins, range_cells)``,
+        the layout of the float model :func:`refmodel.floatmodel.float_cfar2d.cfar_2d`."""
+        import numpy as np
+
+        a = np.asarray(cells)
+        if self.order == "range-fast":
+            return a.reshape(a.shape[:-1] + (self.doppler_bins, self.range_cells))
+        return np.swapaxes(a.reshape(a.shape[:-1] + (self.range_cells, self.doppler_bins)), -1, -2)
+
+    def stream_cells(self, rd_map):
+        """Inverse of :meth:`rd_map`: maps ``(..., doppler_bins, range_cells)`` to cells in stream order."""
+        import numpy as np
+
+        a = np.asarray(rd_map)
+        if self.order == "doppler-fast":
+            a = np.swapaxes(a, -1, -2)
+        return a.reshape(a.shape[:-2] + (self.map_cells,))
+
+    def part_bits(self, part: str) -> int:
+        """Width of the running sums of ``part``: ``bitlen(N (2^W_in - 1))`` or ``bitlen(N_half (2^W_in - 1))``."""
+        n = self.n_cells if part == "all" else self.n_half
+        return (n * ((1 << self.input_bits) - 1)).bit_length()
+
+    @property
+    def parts(self) -> tuple[str, ...]:
+        """The parts whose sums the detector uses: ``("all",)`` for CA, the halves for GO/SO, none for OS."""
+        return {"ca": ("all",), "go": ("lag", "lead"), "so": ("lag", "lead")}.get(self.kind, ())
+
     # ---- widths ---------------------------------------------------------
     @property
     def sum_bits(self) -> int:
