@@ -278,6 +278,30 @@ class MapSpec:
         """Window-stream steps per map that carry no input cell: ``P_s P_f - L_s L_f``."""
         return self.padded_lines * self.padded_line - self.map_cells
 
+    def design_report(self) -> dict:
+        """The 2D lines of ``cfarvec design --spec``: window, reference cell counts, memory, timing."""
+        w = self.window
+        return {
+            "window": w.shape,
+            "map": [self.range_cells, self.doppler_bins],
+            "order": self.order,
+            "range_edge": self.range_edge,
+            "doppler_edge": self.doppler_edge,
+            "guard_rectangle": [2 * w.guard_doppler + 1, 2 * w.guard_range + 1],
+            "window_rectangle": [w.wd, w.wr],
+            "ref_cells": self.n_cells,
+            "half_cells": self.n_half,
+            "design_cells": self.n_ref,
+            "sum_bits": self.sum_bits,
+            "line_buffers": self.line_buffers,
+            "padded_line": self.padded_line,
+            "line_buffer_bits": self.line_buffer_bits,
+            "store_bits": self.store_bits,
+            "window_delay": self.window_delay,
+            "latency_cycles": self.latency_cycles,
+            "drain_cycles": self.drain_cycles,
+        }
+
     def to_dict(self, resolved: bool = False) -> dict:
         """The spec as TOML-able sections that :func:`spec_from_dict` reads back to an equal spec."""
         t = self.twin
