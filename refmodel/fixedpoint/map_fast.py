@@ -12,10 +12,12 @@ How it is fast
 A map is handled in strips of lines (slow-axis rows). Each strip is padded
 as the window stream sees it (zeros, or wrapped cells under ``circular``),
 and one summed-area table of the padded strip in unsigned 64-bit arithmetic
-gives every rectangle sum of the window in four look-ups [1]_; the
-arithmetic wraps modulo ``2**64`` and a signed combination of rectangle sums
-is exact wherever the true value fits [2]_, which the running-sum width
-``W_S`` guarantees. OS gathers the reference cells of each CUT from a strided
+gives every rectangle sum of the window in four look-ups [1]_; for CA, GO
+and SO the cells are multiplied by the constant ``A`` as they are padded
+(sums, maxima and minima commute with ``A > 0``). The arithmetic is int64,
+which wraps modulo ``2**64``, and a signed combination of rectangle sums is
+exact wherever the true value fits [2]_, which the 62-bit product limit
+guarantees. OS gathers the reference cells of each CUT from a strided
 window view and selects the ``k``-th smallest with
 :meth:`numpy.ndarray.partition`. The product, rounding and overflow are the
 1D block's (:meth:`refmodel.block_spec.BlockSpec.threshold_from_statistic`
@@ -34,11 +36,11 @@ from __future__ import annotations
 import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
 
-from ..block_spec import BlockSpec
 from ..errors import SpecError, require
 from ..floatmodel.window2d import box_sums
-from ..map_spec import MapSpec, is_map
-from .pipeline_fast import FastPipeline
+from ..map_spec import MapSpec
+from .fixed_arith import apply_overflow, round_shift, scale_product
+from .pipeline_fast import _largest_t0
 from .word_format import FIELDS, PipelineOutput
 
 #: Padded cells per strip of work (the summed-area table of one strip is 8 bytes a cell).
@@ -60,20 +62,54 @@ def padded_index(length: int, half: int, edge: str, start: int, stop: int) -> np
     return np.where(inside, i, -1)
 
 
-def pad_strip(m: np.ndarray, spec: MapSpec, row0: int, rows: int) -> np.ndarray:
-    """Padded lines ``row0 .. row0 + rows + 2H_s - 1`` of the map ``m`` (shape ``(L_s, L_f)``), all padded columns."""
+def _pad_axis_into(dst: np.ndarray, src: np.ndarray, lo: int, length: int, half: int, edge: str, axis: int,
+                   scale: int = 1) -> None:
+    """Fill ``dst`` along ``axis`` with padded positions ``lo .. lo + dst.shape[axis] - 1`` of ``src``
+    (whose index 0 is map index 0): map cells, wrapped cells under ``circular``, else zeros, by slices."""
+    hi = lo + dst.shape[axis]
+    # The three runs of padded positions: before the map, the map, after the map (p = i + half).
+    for p0, p1, shift in ((lo, min(hi, half), length), (max(lo, half), min(hi, half + length), 0),
+                          (max(lo, half + length), hi, -length)):
+        if p0 >= p1:
+            continue
+        d = [slice(None)] * 2
+        d[axis] = slice(p0 - lo, p1 - lo)
+        if shift and edge != "circular":
+            dst[tuple(d)] = 0
+            continue
+        sidx = [slice(None)] * 2
+        sidx[axis] = slice(p0 - half + shift, p1 - half + shift)
+        if scale == 1:
+            dst[tuple(d)] = src[tuple(sidx)]
+        else:
+            np.multiply(src[tuple(sidx)], scale, out=dst[tuple(d)])
+
+
+def pad_strip(m: np.ndarray, spec: MapSpec, row0: int, rows: int, out: np.ndarray, scale: int = 1) -> np.ndarray:
+    """Padded lines ``row0 .. row0 + rows + 2H_s - 1`` of the map ``m`` (shape ``(L_s, L_f)``), all padded
+    columns, times ``scale``, into ``out`` (shape ``(rows + 2H_s, L_f + 2H_f)``).
+
+    Padded position ``p`` along an axis holds map index ``i = p - H``; outside ``0 .. L-1`` it is
+    ``i mod L`` under ``circular`` and a zero cell otherwise (``docs/bit-true-2d.md`` section 2).
+    """
     sf = spec.slow_fast
     _, _, hs, hf = spec.stream_window
-    ri = padded_index(sf["slow"]["length"], hs, sf["slow"]["edge"], row0, row0 + rows + 2 * hs)
-    ci = padded_index(sf["fast"]["length"], hf, sf["fast"]["edge"], 0, sf["fast"]["length"] + 2 * hf)
-    p = np.zeros((ri.size, ci.size), dtype=m.dtype)
-    rk, ck = ri >= 0, ci >= 0
-    p[np.ix_(rk, ck)] = m[np.ix_(ri[rk], ci[ck])]
-    return p
+    ls, lf = sf["slow"]["length"], sf["fast"]["length"]
+    # Rows first (slices of m with all map columns), then the pad columns of every row.
+    _pad_axis_into(out[:, hf : hf + lf], m, row0, ls, hs, sf["slow"]["edge"], 0, scale)
+    if hf:
+        if sf["fast"]["edge"] == "circular":
+            out[:, :hf] = out[:, lf : lf + hf]
+            out[:, hf + lf :] = out[:, hf : 2 * hf]
+        else:
+            out[:, :hf] = 0
+            out[:, hf + lf :] = 0
+    return out
 
 
-def map_statistic(spec: MapSpec, m: np.ndarray, row0: int, rows: int) -> np.ndarray:
-    """The noise statistic S (``docs/bit-true-2d.md`` section 4) of the CUTs on lines ``row0 .. row0+rows-1``.
+def map_statistic(spec: MapSpec, m: np.ndarray, row0: int, rows: int, out: np.ndarray, scale: int = 1) -> None:
+    """The noise statistic S (``docs/bit-true-2d.md`` section 4), times ``scale``, of the CUTs on lines
+    ``row0 .. row0+rows-1``, into ``out``.
 
     Parameters
     ----------
@@ -82,37 +118,42 @@ def map_statistic(spec: MapSpec, m: np.ndarray, row0: int, rows: int) -> np.ndar
         One map in stream axes.
     row0, rows : int
         The strip of slow-axis lines.
+    out : numpy.ndarray of int64, shape (rows, L_f)
+    scale : int
+        CA/GO/SO only: the cells are multiplied by ``scale`` as they are padded (sums, maxima and
+        minima commute with a positive factor), so the constant's product comes for free.
 
-    Returns
-    -------
-    numpy.ndarray of int64, shape (rows, L_f)
+    Notes
+    -----
+    The summed-area table is int64 arithmetic, which wraps modulo ``2**64``; every rectangle sum
+    and part sum comes out exact because the true value fits (at most 62 bits: the block spec
+    bounds the product ``S * A``) [2]_. So no modular reduction to ``W_S`` bits is needed here: the
+    hardware's ``W_S``-bit registers hold the same true value.
     """
-    ws, wf, _, _ = spec.stream_window
+    ws, wf, hs, hf = spec.stream_window
     lf = m.shape[1]
-    p = pad_strip(m, spec, row0, rows)
     if spec.kind == "os":
+        p = pad_strip(m, spec, row0, rows, np.empty((rows + 2 * hs, lf + 2 * hf), dtype=np.uint32))
         ms, mf = np.nonzero(spec.stream_member())
         k = spec.rank
-        out = np.empty((rows, lf), dtype=np.int64)
-        view = sliding_window_view(p.astype(np.uint32), (ws, wf))  # (rows, L_f, W_s, W_f), a view
+        view = sliding_window_view(p, (ws, wf))  # (rows, L_f, W_s, W_f), a view
         block = max(1, OS_GATHER_CELLS // max(1, lf * ms.size))
         for a in range(0, rows, block):
             cells = view[a : a + block][:, :, ms, mf]  # a copy, partitioned in place
             cells.partition(k - 1, axis=-1)
             out[a : a + block] = cells[..., k - 1]
-        return out
-    table = np.zeros((p.shape[0] + 1, p.shape[1] + 1), dtype=np.uint64)
-    np.cumsum(p.astype(np.uint64), axis=0, out=table[1:, 1:])
-    np.cumsum(table[1:, 1:], axis=1, out=table[1:, 1:])
-    sums = {part: box_sums(table, spec.stream_boxes(part), rows, lf) & np.uint64((1 << spec.part_bits(part)) - 1)
-            for part in spec.parts}
+        return
+    table = np.empty((rows + 2 * hs + 1, lf + 2 * hf + 1), dtype=np.int64)
+    table[0], table[:, 0] = 0, 0
+    inner = pad_strip(m, spec, row0, rows, table[1:, 1:], scale)
+    np.cumsum(inner, axis=0, out=inner)
+    np.cumsum(inner, axis=1, out=inner)
     if spec.kind == "ca":
-        s = sums["all"]
-    elif spec.kind == "go":
-        s = np.maximum(sums["lag"], sums["lead"])
+        box_sums(table, spec.stream_boxes("all"), rows, lf, out)
     else:
-        s = np.minimum(sums["lag"], sums["lead"])
-    return s.view(np.int64)
+        lag = box_sums(table, spec.stream_boxes("lag"), rows, lf)
+        lead = box_sums(table, spec.stream_boxes("lead"), rows, lf)
+        (np.maximum if spec.kind == "go" else np.minimum)(lag, lead, out=out)
 
 
 def axis_fits(spec: MapSpec) -> tuple[np.ndarray, np.ndarray]:
@@ -127,30 +168,46 @@ def axis_fits(spec: MapSpec) -> tuple[np.ndarray, np.ndarray]:
 
 
 def map_words(spec: MapSpec, cells: np.ndarray) -> PipelineOutput:
-    """Output words of one map given in stream order (``docs/bit-true-2d.md`` sections 4-8)."""
+    """Output words of one map given in stream order (``docs/bit-true-2d.md`` sections 4-8).
+
+    ``cells`` (int64) becomes the ``cut`` field of the result; pass a copy if its buffer is reused.
+    """
     sf = spec.slow_fast
     ls, lf = sf["slow"]["length"], sf["fast"]["length"]
-    m = np.array(cells, dtype=np.int64).reshape(ls, lf)  # a copy: the caller may reuse its buffer
+    m = np.asarray(cells, dtype=np.int64).reshape(ls, lf)
+    a, d = spec.alpha_int, spec.drop_bits
+    premultiplied = spec.kind != "os" and not spec.truncate_partials
     stat = np.empty((ls, lf), dtype=np.int64)
     step = max(1, STRIP_CELLS // spec.padded_line - 2 * spec.stream_window[2])
-    for a in range(0, ls, step):
-        rows = min(step, ls - a)
-        stat[a : a + rows] = map_statistic(spec, m, a, rows)
-    thr = np.asarray(spec.threshold_from_statistic(stat), dtype=np.int64)
+    for r0 in range(0, ls, step):
+        rows = min(step, ls - r0)
+        map_statistic(spec, m, r0, rows, stat[r0 : r0 + rows], a if premultiplied else 1)
+    # Product, rounding and overflow: the 1D steps (docs/bit-true.md sections 5-6); the overflow
+    # step is left out where the largest threshold fits the threshold word.
+    if premultiplied and d and spec.rounding != "half-even":  # round_shift's floor and half-up, in place
+        thr = stat
+        if spec.rounding == "half-up":
+            thr += 1 << (d - 1)
+        thr >>= d
+    elif premultiplied:
+        thr = round_shift(stat, d, spec.rounding)
+    else:
+        thr = scale_product(stat, a, d, spec.rounding, spec.truncate_partials)
+    if _largest_t0(spec.twin) > (1 << spec.threshold_bits) - 1:
+        thr = apply_overflow(thr, spec.threshold_bits, spec.overflow)
     c = m << spec.threshold_frac_bits if spec.threshold_frac_bits else m
     det = c > thr if spec.compare == ">" else c >= thr
     range_fits, doppler_fits = axis_fits(spec)
-    valid = np.broadcast_to(range_fits & (doppler_fits | (spec.doppler_edge == "circular")), (ls, lf))
-    zeroed = np.zeros((ls, lf), dtype=bool)
-    if spec.range_edge == "skip":
-        zeroed |= ~range_fits
-    if spec.doppler_edge == "skip":
-        zeroed |= ~doppler_fits
-    thr[zeroed] = 0
-    det[zeroed] = False
+    valid = np.empty((ls, lf), dtype=bool)
+    valid[...] = range_fits & (doppler_fits | (spec.doppler_edge == "circular"))
+    for edge, fits in ((spec.range_edge, range_fits), (spec.doppler_edge, doppler_fits)):
+        if edge == "skip":
+            zeroed = np.broadcast_to(~fits, (ls, lf))
+            thr[zeroed] = 0
+            det[zeroed] = False
     last = np.zeros(ls * lf, dtype=bool)
     last[-1] = True
-    return PipelineOutput(m.ravel(), thr.ravel(), det.ravel(), valid.ravel().copy(), last)
+    return PipelineOutput(m.reshape(-1), thr.reshape(-1), det.reshape(-1), valid.reshape(-1), last)
 
 
 def check_samples(spec, samples, last) -> tuple[np.ndarray, np.ndarray]:
@@ -190,7 +247,7 @@ class MapPipeline:
     def __init__(self, spec: MapSpec):
         self.spec = spec
         self._n = spec.map_cells
-        self._buf = np.zeros(self._n, dtype=np.int64)
+        self._buf = np.zeros(self._n, dtype=np.uint32 if spec.input_bits <= 32 else np.int64)
         self._fill = 0
         self._map = 0
 
@@ -224,7 +281,7 @@ class MapPipeline:
             fill += take
             i = take
             if fill == self._n:
-                parts.append(map_words(self.spec, self._buf))
+                parts.append(map_words(self.spec, self._buf.astype(np.int64)))
                 self._map += 1
                 fill = 0
         while n - i >= self._n:
@@ -235,7 +292,7 @@ class MapPipeline:
             self._buf[: n - i] = x[i:]
             fill = n - i
         self._fill = fill
-        return PipelineOutput.concat(parts)
+        return parts[0] if len(parts) == 1 else PipelineOutput.concat(parts)
 
     def finish(self) -> PipelineOutput:
         """Return the words still held back: none when the stream ended on a map's last cell.
@@ -258,10 +315,4 @@ def run_map_fast(spec: MapSpec, samples, last) -> PipelineOutput:
     return out
 
 
-def pipeline_for(spec: BlockSpec | MapSpec):
-    """The chunked fast model of a block: :class:`MapPipeline` for a map block, else
-    :class:`refmodel.fixedpoint.pipeline_fast.FastPipeline`."""
-    return MapPipeline(spec) if is_map(spec) else FastPipeline(spec)
-
-
-__all__ = ["MapPipeline", "run_map_fast", "map_words", "map_statistic", "pipeline_for", "FIELDS"]
+__all__ = ["MapPipeline", "run_map_fast", "map_words", "map_statistic", "FIELDS"]

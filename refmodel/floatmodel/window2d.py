@@ -185,7 +185,8 @@ def make_window(shape: object, ref: object, guard: object, kind: str, *, field: 
     return w
 
 
-def box_sums(table: np.ndarray, boxes: tuple[Box, ...], n_d: int, n_r: int) -> np.ndarray:
+def box_sums(table: np.ndarray, boxes: tuple[Box, ...], n_d: int, n_r: int, out: np.ndarray | None = None
+             ) -> np.ndarray:
     """Signed rectangle sums for every CUT from a summed-area table.
 
     Parameters
@@ -196,11 +197,13 @@ def box_sums(table: np.ndarray, boxes: tuple[Box, ...], n_d: int, n_r: int) -> n
     boxes : tuple of Box
     n_d, n_r : int
         CUTs along each axis.
+    out : numpy.ndarray, optional
+        Where to put the result (shape ``(..., n_d, n_r)``, the table's dtype).
 
     Returns
     -------
     numpy.ndarray, shape (..., n_d, n_r)
-        The sum of the terms; in the table's dtype (unsigned tables wrap modulo ``2**64`` and stay
+        The sum of the terms; in the table's dtype (integer tables wrap modulo ``2**64`` and stay
         exact where the true sum fits).
 
     References
@@ -208,14 +211,33 @@ def box_sums(table: np.ndarray, boxes: tuple[Box, ...], n_d: int, n_r: int) -> n
     .. [1] F. C. Crow, "Summed-area tables for texture mapping", Computer Graphics (Proc. SIGGRAPH),
        vol. 18, no. 3, pp. 207-212, 1984 (a rectangle sum is four look-ups).
     """
-    out = np.zeros(table.shape[:-2] + (n_d, n_r), dtype=table.dtype)
-    for sign, d0, r0, nd, nr in boxes:
+    shape = table.shape[:-2] + (n_d, n_r)
+    if out is None:
+        out = np.empty(shape, dtype=table.dtype)
+    first = True
+    for sign, d0, r0, nd, nr in boxes:  # in place: fresh temporaries cost more than the arithmetic
         d1, r1 = d0 + nd, r0 + nr
-        t = table[..., d1 : d1 + n_d, r1 : r1 + n_r] - table[..., d0 : d0 + n_d, r1 : r1 + n_r]
-        t -= table[..., d1 : d1 + n_d, r0 : r0 + n_r]
-        t += table[..., d0 : d0 + n_d, r0 : r0 + n_r]
-        if sign > 0:
-            out += t
+        a = table[..., d1 : d1 + n_d, r1 : r1 + n_r]
+        b = table[..., d0 : d0 + n_d, r1 : r1 + n_r]
+        c = table[..., d1 : d1 + n_d, r0 : r0 + n_r]
+        d = table[..., d0 : d0 + n_d, r0 : r0 + n_r]
+        if first:
+            np.subtract(a, b, out=out)
+            out -= c
+            out += d
+            if sign < 0:
+                np.negative(out, out=out)
+            first = False
+        elif sign > 0:
+            out += a
+            out -= b
+            out -= c
+            out += d
         else:
-            out -= t
+            out -= a
+            out += b
+            out += c
+            out -= d
+    if first:
+        out[...] = 0
     return out
