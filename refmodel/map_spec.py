@@ -420,9 +420,25 @@ def map_spec_from_dict(data: Mapping[str, Any], source: str | None = None) -> Ma
                    doppler_edge=doppler_edge, sections=MappingProxyType(sections), source=source)
 
 
+def interior_twin(spec):
+    """The block whose quantisation study is that of ``spec`` at cells where the window holds map cells only.
+
+    For a :class:`MapSpec`, its arithmetic twin (the 1D block of ``R'`` reference cells per side, see
+    the module notes) with the map spec's downstream sections: at such a cell the 2D statistic is a
+    sum, maximum of two half sums, or order statistic of the same number of independent input words
+    as the twin's, so its exact Pfa, Pd and Monte Carlo are the twin's. A 1D spec is returned as is.
+    """
+    if not isinstance(spec, MapSpec):
+        return spec
+    from dataclasses import replace
+
+    label = f"{spec.source or 'in-memory map spec'} (map block: its arithmetic twin of {spec.n_ref} cells)"
+    return replace(spec.twin, sections=spec.sections, source=label)
+
+
 def is_map(spec: object) -> bool:
     """True for a :class:`MapSpec` (a range-Doppler block)."""
     return isinstance(spec, MapSpec)
 
 
-__all__ = ["MapSpec", "map_spec_from_dict", "is_map", "twin_ref_per_side", "ORDERS", "MAP_EDGES", "CROSS", "RING"]
+__all__ = ["MapSpec", "map_spec_from_dict", "is_map", "interior_twin", "twin_ref_per_side", "ORDERS", "MAP_EDGES", "CROSS", "RING"]
