@@ -112,8 +112,8 @@ class MapSpec:
             return getattr(self.twin, name)
         if name.startswith("__"):
             raise AttributeError(name)
-        raise SpecError("map", f"this step supports 1D blocks only (it needs {name!r}, which a map block has not)",
-                        "a 1D block spec (no [map] section)")
+        raise SpecError("map", f"this command supports 1D blocks only so far ({name!r} is a 1D block property; "
+                        "map blocks go through design, vectors, check and study)", "a 1D block spec (no [map] section)")
 
     # ---- geometry -------------------------------------------------------
     @property
