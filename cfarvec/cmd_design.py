@@ -119,6 +119,8 @@ def build_report(args: argparse.Namespace) -> dict:
     report = d.to_dict()
     if spec is not None:
         report["fixed"] = fixed_report(spec)
+        if getattr(spec, "is_map", False):  # range-Doppler block: refmodel/map_spec.py
+            report["map"] = spec.design_report()
     return report
 
 
@@ -189,6 +191,26 @@ def _text_fixed(r: dict) -> list[str]:
     ]
 
 
+def _text_map(r: dict) -> list[str]:
+    if "map" not in r:
+        return []
+    m = r["map"]
+    shape = "reference ring" if m["window"] == "ring" else "cross-shaped window"
+    return [
+        "Range-Doppler map",
+        f"  map               {m['map'][0]} range cells x {m['map'][1]} Doppler bins, {m['order']}, edges: range "
+        f"{m['range_edge']}, Doppler {m['doppler_edge']}",
+        f"  window            {shape}, {m['window_rectangle'][0]} x {m['window_rectangle'][1]} (Doppler x range) "
+        f"around a {m['guard_rectangle'][0]} x {m['guard_rectangle'][1]} guard rectangle",
+        f"  reference cells   N = {m['ref_cells']}, {m['half_cells']} in each range half (design on "
+        f"{m['design_cells']} cells)",
+        f"  memory            {m['line_buffers']} line buffers of {m['padded_line']} cells = {m['line_buffer_bits']} "
+        f"bits, input store {m['store_bits']} bits",
+        f"  timing            first word {m['latency_cycles']} cycles after a map's first cell, window delay "
+        f"{m['window_delay']} steps, {m['drain_cycles']} pad steps per map",
+    ]
+
+
 def _case_name(sw: int) -> str:
     return "Swerling 0" if sw == 0 else "Swerling I"
 
@@ -236,7 +258,7 @@ def _text_loss(r: dict) -> list[str]:
 
 
 #: Text report sections, in order; each maps the report dict to lines.
-TEXT_SECTIONS: list[Callable[[dict], list[str]]] = [_text_threshold, _text_pd, _text_loss, _text_fixed]
+TEXT_SECTIONS: list[Callable[[dict], list[str]]] = [_text_threshold, _text_pd, _text_loss, _text_fixed, _text_map]
 
 
 def format_text(report: dict) -> str:

@@ -358,6 +358,10 @@ def spec_from_dict(data: Mapping[str, Any], source: str | None = None) -> BlockS
     SpecError
         Naming the first offending field (``section.key``) and its allowed values.
     """
+    if isinstance(data, Mapping) and "map" in data:  # a range-Doppler block: refmodel/map_spec.py
+        from .map_spec import map_spec_from_dict
+
+        return map_spec_from_dict(data, source)
     known = ("detector", "fixed", "stream") + DOWNSTREAM_SECTIONS
     for name in data:
         require(name in known, name, "unknown section", choices(known))

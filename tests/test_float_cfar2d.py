@@ -20,7 +20,8 @@ from hypothesis import strategies as st
 from scipy import integrate, optimize, stats
 
 from refmodel.errors import SpecError
-from refmodel.floatmodel.float_cfar2d import band_offsets, cfar_2d
+from refmodel.floatmodel.float_cfar2d import cfar_2d
+from refmodel.floatmodel.window2d import Window2D
 
 KINDS = ("ca", "go", "so", "os")
 RANGE_EDGES = ("skip", "zero-pad", "one-sided", "circular")
@@ -40,7 +41,8 @@ HYP = settings(
 # --------------------------------------------------------------------------
 # Per-cell reference: a direct transcription of the written definition, one
 # cell at a time over explicit offset lists. Deliberately slow and plain.
-# Written from docs/float-model.md section 4 (the 2D band, its halves and the
+# Written from docs/float-model.md section 4 (the guard rectangle, the
+# reference ring and the cross-shaped window, their halves and the
 # 2D edge rules are this project's definitions) and the published 1D
 # detectors it extends: CA, the mean of the reference cells (H. M. Finn and
 # R. S. Johnson, RCA Review 29(3), 1968; M. A. Richards, Fundamentals of Radar
@@ -52,7 +54,7 @@ HYP = settings(
 # --------------------------------------------------------------------------
 
 
-def reference_estimate_2d(m, kind, Rd, Rr, Gd, Gr, rank, range_edge, doppler_edge):
+def reference_estimate_2d(m, kind, Rd, Rr, Gd, Gr, rank, range_edge, doppler_edge, window="ring"):
     """Return (estimate, valid) as nested lists for one map m[d][n]."""
     D, L = len(m), len(m[0])
     hd, hr = Rd + Gd, Rr + Gr
@@ -80,13 +82,15 @@ def reference_estimate_2d(m, kind, Rd, Rr, Gd, Gr, rank, range_edge, doppler_edg
                     j %= L
                 return float(m[i][j])
 
-            band, lag, lead = [], [], []
+            ring, lag, lead = [], [], []
             for dd in range(-hd, hd + 1):
                 for rr in range(-hr, hr + 1):
                     if abs(dd) <= Gd and abs(rr) <= Gr:
                         continue  # guard rectangle (includes the CUT)
+                    if window == "cross" and dd != 0 and rr != 0:
+                        continue  # the cross-shaped window keeps the two arms through the CUT only
                     v = value(d + dd, n + rr)
-                    band.append(v)
+                    ring.append(v)
                     if rr < 0:
                         lag.append(v)
                     elif rr > 0:
@@ -96,17 +100,17 @@ def reference_estimate_2d(m, kind, Rd, Rr, Gd, Gr, rank, range_edge, doppler_edg
             if range_edge == "one-sided" and not (lag_complete and lead_complete):
                 side = lead if not lag_complete else lag
                 if kind == "os":
-                    est = sorted(side)[math.ceil(rank * len(side) / len(band)) - 1]
+                    est = sorted(side)[math.ceil(rank * len(side) / len(ring)) - 1]
                 else:
                     est = sum(side) / len(side)
             elif kind == "ca":
-                est = sum(band) / len(band)
+                est = sum(ring) / len(ring)
             elif kind == "go":
                 est = max(sum(lag) / len(lag), sum(lead) / len(lead))
             elif kind == "so":
                 est = min(sum(lag) / len(lag), sum(lead) / len(lead))
             else:
-                est = sorted(band)[rank - 1]
+                est = sorted(ring)[rank - 1]
             est_row.append(est)
         est_rows.append(est_row)
         valid_rows.append(valid_row)
@@ -121,9 +125,9 @@ def reference_decision(x, est, alpha, compare):
     return thr, (x > thr) if compare == ">" else (x >= thr)
 
 
-# (Rd, Rr, Gd, Gr, D, L): minimal maps, pure range band (Rd = 0), no guard,
+# (Rd, Rr, Gd, Gr, D, L): minimal maps, a pure range ring (Rd = 0), no guard,
 # range reference 0 with guard (halves beside the guard in Doppler only), a
-# band with guard 0 in range.
+# ring with guard 0 in range.
 GEOMETRIES = [
     (1, 2, 1, 1, 5, 8),
     (0, 3, 0, 1, 3, 11),
@@ -133,15 +137,16 @@ GEOMETRIES = [
 ]
 
 
-def _check_2d_against_reference(m, kind, geom, rank, range_edge, doppler_edge, alphas=(1.0, 1.5), exact=True):
+def _check_2d_against_reference(m, kind, geom, rank, range_edge, doppler_edge, alphas=(1.0, 1.5), exact=True,
+                                window="ring"):
     Rd, Rr, Gd, Gr, _, _ = geom
     maps = m.reshape((-1,) + m.shape[-2:])
-    refs = [reference_estimate_2d(mm, kind, Rd, Rr, Gd, Gr, rank, range_edge, doppler_edge) for mm in maps]
+    refs = [reference_estimate_2d(mm, kind, Rd, Rr, Gd, Gr, rank, range_edge, doppler_edge, window) for mm in maps]
     for alpha in alphas:
         for compare in COMPARES:
             res = cfar_2d(
                 m, kind, (Rd, Rr), (Gd, Gr), alpha,
-                rank=rank, compare=compare, range_edge=range_edge, doppler_edge=doppler_edge,
+                rank=rank, compare=compare, range_edge=range_edge, doppler_edge=doppler_edge, window=window,
             )
             for arr in (res.estimate, res.threshold, res.detections, res.valid):
                 assert arr.shape == m.shape
@@ -180,8 +185,8 @@ def test_matches_per_cell_reference(kind, range_edge, doppler_edge):
     rng = np.random.default_rng(31337)
     for geom in GEOMETRIES:
         Rd, Rr, Gd, Gr, D, L = geom
-        n_band = (2 * Rd + 2 * Gd + 1) * (2 * Rr + 2 * Gr + 1) - (2 * Gd + 1) * (2 * Gr + 1)
-        ranks = sorted({1, (n_band + 1) // 2, n_band}) if kind == "os" else [None]
+        n_ring = (2 * Rd + 2 * Gd + 1) * (2 * Rr + 2 * Gr + 1) - (2 * Gd + 1) * (2 * Gr + 1)
+        ranks = sorted({1, (n_ring + 1) // 2, n_ring}) if kind == "os" else [None]
         lead = (2,) if geom is GEOMETRIES[0] else ()
         m = rng.integers(0, 4, size=lead + (D, L)).astype(float)
         for rank in ranks:
@@ -196,7 +201,7 @@ def test_matches_per_cell_reference(kind, range_edge, doppler_edge):
 @pytest.mark.filterwarnings("error")
 @pytest.mark.parametrize("range_edge", RANGE_EDGES)
 @pytest.mark.parametrize("kind", ["ca", "os"])
-def test_pure_doppler_band_matches_per_cell_reference(kind, range_edge):
+def test_pure_doppler_ring_matches_per_cell_reference(kind, range_edge):
     # ref_range = guard_range = 0: the window is one range cell wide, always
     # fits along range, and the (empty) range halves are never used.
     rng = np.random.default_rng(11)
@@ -219,8 +224,26 @@ def cases_2d(draw):
         Rr = 1  # halves must be non-empty for GO/SO
     D = draw(st.integers(2 * Rd + 2 * Gd + 1, 2 * Rd + 2 * Gd + 4))
     L = draw(st.integers(2 * Rr + 2 * Gr + 1, 2 * Rr + 2 * Gr + 6))
-    n_band = (2 * Rd + 2 * Gd + 1) * (2 * Rr + 2 * Gr + 1) - (2 * Gd + 1) * (2 * Gr + 1)
-    rank = draw(st.integers(1, n_band)) if kind == "os" else None
+    n_ring = (2 * Rd + 2 * Gd + 1) * (2 * Rr + 2 * Gr + 1) - (2 * Gd + 1) * (2 * Gr + 1)
+    rank = draw(st.integers(1, n_ring)) if kind == "os" else None
+    vals = draw(st.lists(st.integers(0, 5), min_size=D * L, max_size=D * L))
+    m = np.array(vals, dtype=float).reshape(D, L)
+    return m, kind, (Rd, Rr, Gd, Gr, D, L), rank, range_edge, doppler_edge
+
+
+@st.composite
+def cross_cases_2d(draw):
+    # The cross-shaped window: arms of Rd and Rr cells per side beyond Gd and Gr guard cells.
+    kind = draw(st.sampled_from(KINDS))
+    range_edge = draw(st.sampled_from(RANGE_EDGES))
+    doppler_edge = draw(st.sampled_from(DOPPLER_EDGES))
+    Rd = draw(st.integers(0, 2))
+    Rr = draw(st.integers(1 if kind in ("go", "so") or Rd == 0 else 0, 3))
+    Gd = draw(st.integers(0, 2))
+    Gr = draw(st.integers(0, 2) if Rr else st.just(0))  # one-sided needs cells in the range halves
+    D = draw(st.integers(2 * Rd + 2 * Gd + 1, 2 * Rd + 2 * Gd + 4))
+    L = draw(st.integers(2 * Rr + 2 * Gr + 1, 2 * Rr + 2 * Gr + 6))
+    rank = draw(st.integers(1, 2 * Rd + 2 * Rr)) if kind == "os" else None
     vals = draw(st.lists(st.integers(0, 5), min_size=D * L, max_size=D * L))
     m = np.array(vals, dtype=float).reshape(D, L)
     return m, kind, (Rd, Rr, Gd, Gr, D, L), rank, range_edge, doppler_edge
@@ -231,6 +254,24 @@ def cases_2d(draw):
 def test_matches_per_cell_reference_random(case):
     m, kind, geom, rank, range_edge, doppler_edge = case
     _check_2d_against_reference(m, kind, geom, rank, range_edge, doppler_edge, alphas=(1.0,))
+
+
+@HYP
+@given(cross_cases_2d())
+def test_cross_shaped_window_matches_per_cell_reference_random(case):
+    m, kind, geom, rank, range_edge, doppler_edge = case
+    _check_2d_against_reference(m, kind, geom, rank, range_edge, doppler_edge, alphas=(1.0,), window="cross")
+
+
+def test_cross_shaped_window_cell_count_by_hand():
+    # Counted by hand from the definition (docs/float-model.md section 4): Rd = 2, Rr = 3, Gd = 1,
+    # Gr = 1. Range arm: offsets (0, -4..-2) and (0, 2..4), 6 cells; Doppler arm: (-3..-2, 0) and
+    # (2..3, 0), 4 cells; N = 10; each range half holds the 3 range-arm cells on its side.
+    w = Window2D("cross", 2, 3, 1, 1)
+    cells = set(zip(*(a.tolist() for a in w.offsets())))
+    assert cells == {(0, r) for r in (-4, -3, -2, 2, 3, 4)} | {(d, 0) for d in (-3, -2, 2, 3)}
+    assert (w.n_cells, w.n_half) == (10, 3)
+    assert set(zip(*(a.tolist() for a in w.offsets("lag")))) == {(0, -4), (0, -3), (0, -2)}
 
 
 @pytest.mark.parametrize("range_edge", RANGE_EDGES)
@@ -249,7 +290,7 @@ def test_os_in_small_blocks_matches_per_cell_reference(monkeypatch, range_edge):
 
 def test_summed_area_rounding_never_gives_negative_estimate():
     # Huge samples in the first rows and columns, zeros elsewhere: the four-term
-    # summed-area difference over an all-zero band can round below 0; the
+    # summed-area difference over an all-zero ring can round below 0; the
     # model must still give estimate >= 0, so a zero CUT with ">" is never a
     # detection (by the definition 0 > alpha * 0 is false). Common practice,
     # no source.
@@ -259,10 +300,10 @@ def test_summed_area_rounding_never_gives_negative_estimate():
         m[:2, :] = rng.exponential(1e16, (2, 40))
         m[:, :3] = rng.exponential(1e16, (12, 3))
         res = cfar_2d(m, "ca", (1, 3), (1, 1), 2.0, range_edge="skip", doppler_edge="skip")
-        zero_band = np.zeros_like(res.valid)
-        zero_band[4:10, 7:36] = True
-        assert np.all(res.estimate[zero_band] >= 0.0)
-        assert not res.detections[zero_band].any()
+        zero_ring = np.zeros_like(res.valid)
+        zero_ring[4:10, 7:36] = True
+        assert np.all(res.estimate[zero_ring] >= 0.0)
+        assert not res.detections[zero_ring].any()
 
 
 # --------------------------------------------------------------------------
@@ -279,7 +320,7 @@ PFA_TARGET = 1e-2  # about 500 expected false alarms per run
 RD, RR, GD, GR = 1, 2, 0, 1
 HD, HR = RD + GD, RR + GR
 WD, WR = 2 * HD + 1, 2 * HR + 1
-N_BAND = WD * WR - (2 * GD + 1) * (2 * GR + 1)  # 21 - 3 = 18
+N_RING = WD * WR - (2 * GD + 1) * (2 * GR + 1)  # 21 - 3 = 18
 N_HALF = WD * HR - (2 * GD + 1) * GR  # 9 - 1 = 8 cells with range offset < 0
 
 
@@ -321,40 +362,40 @@ def _alpha_for(pfa_of_alpha, target=PFA_TARGET):
     return optimize.brentq(lambda a: pfa_of_alpha(a) - target, 1e-6, 1e4, xtol=1e-12)
 
 
-def test_band_counts_of_the_mc_geometry():
+def test_ring_counts_of_the_mc_geometry():
     # Counted by hand from the definition (docs/float-model.md section 4), Rd = 1, Rr = 2, Gd = 0,
     # Gr = 1: the window is Doppler offsets -1..1 by range offsets -3..3, 3 x 7 = 21 cells; the guard
-    # rectangle is Doppler 0 by range -1..1, 3 cells (the CUT among them); the band holds 18.
+    # rectangle is Doppler 0 by range -1..1, 3 cells (the CUT among them); the reference ring holds 18.
     # Lagging half (range offset < 0): 3 rows x 3 columns minus the guard cell (0, -1) = 8, the
     # leading half likewise 8; the 2 cells (-1, 0) and (1, 0) straight above and below the CUT are
     # in neither half: 8 + 8 + 2 = 18.
-    d_off, r_off = band_offsets((RD, RR), (GD, GR))
+    d_off, r_off = Window2D("ring", RD, RR, GD, GR).offsets()
     cells = set(zip(d_off.tolist(), r_off.tolist()))
     assert len(d_off) == len(cells) == 18
     window = {(d, r) for d in (-1, 0, 1) for r in range(-3, 4)}
     assert cells == window - {(0, -1), (0, 0), (0, 1)}
     assert int((r_off < 0).sum()) == 8 and int((r_off > 0).sum()) == 8
     assert {c for c in cells if c[1] == 0} == {(-1, 0), (1, 0)}
-    assert (N_BAND, N_HALF) == (18, 8)  # the constants the Monte Carlo below uses
+    assert (N_RING, N_HALF) == (18, 8)  # the constants the Monte Carlo below uses
 
 
 def test_monte_carlo_pfa_ca_2d():
-    alpha = _alpha_for(lambda a: pfa_ca(a, N_BAND))
+    alpha = _alpha_for(lambda a: pfa_ca(a, N_RING))
     res = cfar_2d(_maps(201), "ca", (RD, RR), (GD, GR), alpha, range_edge="skip", doppler_edge="skip")
     assert res.valid[:, HD, HR].all() and res.valid.sum() == TRIALS
-    _assert_rate(res.detections.sum(), TRIALS, pfa_ca(alpha, N_BAND))
+    _assert_rate(res.detections.sum(), TRIALS, pfa_ca(alpha, N_RING))
 
 
 def test_monte_carlo_pfa_os_2d():
     k = 13
-    alpha = _alpha_for(lambda a: pfa_os(a, N_BAND, k))
+    alpha = _alpha_for(lambda a: pfa_os(a, N_RING, k))
     res = cfar_2d(_maps(202), "os", (RD, RR), (GD, GR), alpha, rank=k, range_edge="skip", doppler_edge="skip")
-    _assert_rate(res.detections.sum(), TRIALS, pfa_os(alpha, N_BAND, k))
+    _assert_rate(res.detections.sum(), TRIALS, pfa_os(alpha, N_RING, k))
 
 
 @pytest.mark.parametrize("kind", ["go", "so"])
 def test_monte_carlo_pfa_go_so_2d(kind):
-    # The halves hold N_HALF = 8 cells each (not N_BAND / 2 = 9): the rate
+    # The halves hold N_HALF = 8 cells each (not N_RING / 2 = 9): the rate
     # depends on that count, so this also checks the half definition.
     # alpha of a CA detector on the two halves at PFA_TARGET: GO/SO then sit
     # near it (numerical integration is too slow to invert in a test).
@@ -369,7 +410,7 @@ def test_monte_carlo_pfa_go_so_2d(kind):
 def test_monte_carlo_pfa_one_sided_range_edge_2d():
     # At range cell 0 the lagging half is outside the map: CA uses the mean of
     # the leading half (N_HALF exponentials, Finn & Johnson 1968 with
-    # N = N_HALF); OS uses rank ceil(k * N_HALF / N_BAND) among the half
+    # N = N_HALF); OS uses rank ceil(k * N_HALF / N_RING) among the half
     # (rule: common practice, no source; Pfa: Rohling 1983 with N = N_HALF).
     x = _maps(205)
     alpha = _alpha_for(lambda a: pfa_ca(a, N_HALF))
@@ -377,7 +418,7 @@ def test_monte_carlo_pfa_one_sided_range_edge_2d():
     assert not res.valid[:, HD, 0].any()
     _assert_rate(res.detections[:, HD, 0].sum(), TRIALS, pfa_ca(alpha, N_HALF))
     k = 13
-    kh = math.ceil(k * N_HALF / N_BAND)
+    kh = math.ceil(k * N_HALF / N_RING)
     alpha = _alpha_for(lambda a: pfa_os(a, N_HALF, kh))
     res = cfar_2d(x, "os", (RD, RR), (GD, GR), alpha, rank=k, range_edge="one-sided", doppler_edge="skip")
     _assert_rate(res.detections[:, HD, -1].sum(), TRIALS, pfa_os(alpha, N_HALF, kh))
@@ -387,10 +428,10 @@ def test_monte_carlo_pfa_circular_doppler_edge_2d():
     # Doppler row 0 of a map of exactly WD rows: the circular Doppler axis
     # wraps the upper rows to distinct cells of the same map, so the full CA
     # formula holds there (Finn & Johnson 1968).
-    alpha = _alpha_for(lambda a: pfa_ca(a, N_BAND))
+    alpha = _alpha_for(lambda a: pfa_ca(a, N_RING))
     res = cfar_2d(_maps(206), "ca", (RD, RR), (GD, GR), alpha, range_edge="skip", doppler_edge="circular")
     assert res.valid[:, 0, HR].all()
-    _assert_rate(res.detections[:, 0, HR].sum(), TRIALS, pfa_ca(alpha, N_BAND))
+    _assert_rate(res.detections[:, 0, HR].sum(), TRIALS, pfa_ca(alpha, N_RING))
 
 
 # --------------------------------------------------------------------------
@@ -478,7 +519,7 @@ GOOD = dict(rd_map=np.ones((8, 16)), kind="ca", ref=(1, 3), guard=(1, 1), alpha=
 
 def _call(**over):
     args = {**GOOD, **over}
-    kw = {k: args.pop(k) for k in ("rank", "compare", "range_edge", "doppler_edge") if k in args}
+    kw = {k: args.pop(k) for k in ("rank", "compare", "range_edge", "doppler_edge", "window") if k in args}
     return cfar_2d(args["rd_map"], args["kind"], args["ref"], args["guard"], args["alpha"], **kw)
 
 
@@ -499,7 +540,10 @@ BAD = [
     ("alpha", dict(alpha=float("nan"))),
     ("rank", dict(kind="os")),
     ("rank", dict(kind="os", rank=0)),
-    ("rank", dict(kind="os", rank=37)),  # band of (1, 3), (1, 1) has 36 cells
+    ("rank", dict(kind="os", rank=37)),  # the ring of (1, 3), (1, 1) has 36 cells
+    ("window", dict(window="box")),
+    ("ref", dict(kind="go", ref=(2, 0), guard=(1, 1), window="cross")),  # cross: no range arm
+    ("range_edge", dict(ref=(2, 0), guard=(1, 1), window="cross", range_edge="one-sided")),
     ("rank", dict(kind="go", rank=1)),
     ("compare", dict(compare="gt")),
     ("range_edge", dict(range_edge="wrap")),
@@ -523,6 +567,6 @@ def test_bad_input_raises_spec_error_naming_the_parameter(field, over):
     assert exc.value.allowed
 
 
-def test_rank_equal_to_band_count_and_minimal_map_are_accepted():
+def test_rank_equal_to_ring_count_and_minimal_map_are_accepted():
     res = _call(kind="os", rank=36, rd_map=np.ones((5, 9)))
     assert res.valid.sum() == 5  # circular Doppler: every row fits; one range cell

@@ -35,6 +35,7 @@ import numpy as np
 
 from refmodel.block_spec import BlockSpec, spec_from_dict
 from refmodel.errors import SpecError, require
+from refmodel.fixedpoint.map_fast import MapPipeline
 from refmodel.fixedpoint.pipeline_fast import FastPipeline
 from refmodel.fixedpoint.word_format import FIELDS, PipelineOutput, pack_output, unpack_input, unpack_output
 
@@ -404,7 +405,7 @@ class _Content:
                                                                f"words", line=first + n))
 
     def run(self) -> None:
-        pipe = FastPipeline(self.spec)
+        pipe = MapPipeline(self.spec) if getattr(self.spec, "is_map", False) else FastPipeline(self.spec)
         while (chunk := self.stimulus_chunk()) is not None:
             try:
                 out = pipe.push(*chunk)

@@ -35,6 +35,7 @@ from refmodel.block_spec import BlockSpec
 from refmodel.errors import require
 from refmodel.output_folder import staged_folder
 from refmodel.spec_fields import boolean, choice_list, integer, number, table
+from refmodel.fixedpoint.map_fast import MapPipeline
 from refmodel.fixedpoint.pipeline_fast import FastPipeline
 from refmodel.fixedpoint.word_format import PipelineOutput, pack_input, pack_output
 
@@ -129,6 +130,10 @@ def vector_settings(spec: BlockSpec, *, seed: int | None = None, formats=None) -
         Naming the first bad field (``vectors.<key>``, ``vectors.targets[i].<key>``,
         ``--seed`` or ``--formats``).
     """
+    if getattr(spec, "is_map", False):  # range-Doppler block: vectors/map_vectors.py
+        from .map_vectors import map_vector_settings
+
+        return map_vector_settings(spec, seed=seed, formats=formats)
     raw = table(spec.sections, "vectors", dict.fromkeys(_KEYS))
     raw = {k: v for k, v in raw.items() if v is not None}
     L, W = spec.frame_length, spec.window_length
@@ -188,6 +193,11 @@ def vector_settings(spec: BlockSpec, *, seed: int | None = None, formats=None) -
 
 def source_blocks(spec: BlockSpec, settings: VectorSettings) -> Iterator[tuple[str, FrameBlock]]:
     """Every block of the set, in stream order, tagged with its source name."""
+    if getattr(spec, "is_map", False):  # range-Doppler block: vectors/map_vectors.py
+        from .map_vectors import map_source_blocks
+
+        yield from map_source_blocks(spec, settings)
+        return
     seqs = dict(zip(SOURCES, np.random.SeedSequence(settings.seed).spawn(len(SOURCES))))
     if settings.include_corner_cases:
         for b in corner_case_blocks(spec):
@@ -302,12 +312,15 @@ def _generate(spec: BlockSpec, settings: VectorSettings, folder: Path) -> dict:
     files = _Files(folder, spec, settings.formats)
     tally = _Tally()
     try:
-        pipe = FastPipeline(spec)
+        pipe = MapPipeline(spec) if getattr(spec, "is_map", False) else FastPipeline(spec)
 
         def emit(out: PipelineOutput) -> None:
-            if len(out):
-                fields = [out.cut, out.threshold, out.det, out.valid, out.last]
-                files.write("expected", pack_output(spec, out), fields, out.last)
+            step = settings.chunk_samples  # a map block's words come a whole map at a time: write in chunks
+            for a in range(0, len(out), step):
+                part = PipelineOutput(*(f[a : a + step] for f in (out.cut, out.threshold, out.det, out.valid,
+                                                                   out.last)))
+                fields = [part.cut, part.threshold, part.det, part.valid, part.last]
+                files.write("expected", pack_output(spec, part), fields, part.last)
 
         for samples, last in rechunk(tally.blocks(source_blocks(spec, settings)), settings.chunk_samples):
             files.write("stimulus", pack_input(spec, samples, last), [samples, last], last)

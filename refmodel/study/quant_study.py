@@ -72,6 +72,7 @@ from scipy import optimize
 
 from .. import threshold_design as td
 from ..block_spec import BlockSpec, spec_from_dict
+from ..map_spec import interior_twin
 from ..errors import SpecError, require
 from ..spec_fields import choice, choice_list, integer, integer_list, number, number_list
 from ..fixedpoint.exact_pfa import trigger_law
@@ -227,6 +228,7 @@ def study_config(spec: BlockSpec, options: Mapping[str, Any] | None = None) -> S
     SpecError
         Naming the option (``--input-bits``) or field (``study.input_bits``).
     """
+    spec = interior_twin(spec)  # a map block is studied as its 1D arithmetic twin (refmodel/map_spec.py)
     raw = dict(spec.sections.get("study", {}))
     known = set(OPTIONS)
     unknown = sorted(set(raw) - known)
@@ -554,6 +556,7 @@ def run_study(spec: BlockSpec, cfg: StudyConfig, *, workers: int | None = None, 
     """
     from tqdm import tqdm
 
+    spec = interior_twin(spec)  # a map block is studied as its 1D arithmetic twin (refmodel/map_spec.py)
     points = sweep_points(spec, cfg)
     float_snr = float_snr_needed(spec, cfg)
     cfg_dict = cfg.to_dict()
