@@ -80,8 +80,11 @@ module cfar_stream_tb;
     parameter EXPECT_FILE = "expected.hex";
     // File receiving every output word in hex, one per line.
     parameter OUT_FILE = "received.hex";
-    // Words to use from the files; 0 = all (the first unwritten entry ends the list).
+    // Words in the stimulus and expected files (> 0; +N_WORDS at run time). The bench is told the count
+    // rather than looking for unwritten (x) entries, which a two-state simulator such as Verilator lacks.
     parameter integer N_WORDS = 0;
+    // Words in the expected file; 0 = N_WORDS. A different count is reported as an error.
+    parameter integer N_EXPECT = 0;
     // Depth of the word memories (at least the number of words in the files).
     parameter integer MAX_WORDS = 65536;
     // Percent of cycles the source leaves s_axis_tvalid low when it has a word.
@@ -279,6 +282,7 @@ module cfar_stream_tb;
         stall_pct   = STALL_PERCENT;
         seed        = SEED;
         n_words     = N_WORDS;
+        n_expect    = N_EXPECT;
         timeout     = TIMEOUT_CYCLES;
         max_reports = MAX_REPORTS;
         sink_wait   = SINK_WAITS_FOR_VALID;
@@ -292,6 +296,7 @@ module cfar_stream_tb;
         if ($value$plusargs("STALL_PERCENT=%d", stall_pct)) ;
         if ($value$plusargs("SEED=%d", seed)) ;
         if ($value$plusargs("N_WORDS=%d", n_words)) ;
+        if ($value$plusargs("N_EXPECT=%d", n_expect)) ;
         if ($value$plusargs("TIMEOUT_CYCLES=%d", timeout)) ;
         if ($value$plusargs("MAX_REPORTS=%d", max_reports)) ;
         if ($value$plusargs("SINK_WAITS_FOR_VALID=%d", sink_wait)) ;
@@ -312,26 +317,20 @@ module cfar_stream_tb;
             note_error("N_WORDS exceeds MAX_WORDS");
             n_words = MAX_WORDS;
         end
-        if (n_words > 0) begin
-            // Known word count: read exactly that range (no short-file warning).
-            $readmemh(stim_name, stim_mem, 0, n_words - 1);
-            $readmemh(expect_name, expect_mem, 0, n_words - 1);
-        end else begin
-            $readmemh(stim_name, stim_mem);
-            $readmemh(expect_name, expect_mem);
-        end
-
-        // Count the words: the first entry $readmemh left unwritten (x) ends each list.
         if (n_words <= 0) begin
+            $display("ERROR: N_WORDS=%0d: give the number of words in the files (+N_WORDS=...)", n_words);
+            note_error("N_WORDS not given");
             n_words = 0;
-            while (n_words < MAX_WORDS && ^stim_mem[n_words] !== 1'bx) n_words = n_words + 1;
+        end else begin
+            $readmemh(stim_name, stim_mem, 0, n_words - 1);
         end
-        n_expect = 0;
-        while (n_expect < MAX_WORDS && ^expect_mem[n_expect] !== 1'bx) n_expect = n_expect + 1;
+        if (n_expect <= 0) n_expect = n_words;
         if (n_expect != n_words) begin
             $display("ERROR: %0d stimulus words but %0d expected words", n_words, n_expect);
             note_error("stimulus and expected word counts differ");
         end
+        if (n_expect > MAX_WORDS) n_expect = MAX_WORDS;
+        if (n_expect > 0) $readmemh(expect_name, expect_mem, 0, n_expect - 1);
         if (n_words > 0 && stim_mem[n_words-1][INPUT_BITS] !== 1'b1) begin
             $display("ERROR: the last stimulus word does not carry the last marker");
             note_error("last stimulus word without last marker");
