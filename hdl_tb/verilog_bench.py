@@ -25,7 +25,6 @@ from __future__ import annotations
 import hashlib
 import os
 import re
-import shutil
 import subprocess
 import tempfile
 from dataclasses import dataclass
@@ -36,6 +35,7 @@ from refmodel.block_spec import BlockSpec
 from refmodel.errors import SpecError
 
 from .core_params import BENCH_SOURCE, BENCH_TOP, CORE_SOURCES, core_parameters
+from .simulators import icarus_tools
 
 #: Default file names inside a vector folder.
 STIMULUS_FILE = "stimulus.hex"
@@ -94,19 +94,14 @@ class BenchResult:
 
 
 def find_tools() -> tuple[str, str]:
-    """Paths of ``iverilog`` and ``vvp``.
+    """Paths of ``iverilog`` and ``vvp`` (:func:`hdl_tb.simulators.icarus_tools`).
 
     Raises
     ------
     SpecError
         Field ``"simulator"`` when either program is not on ``PATH``.
     """
-    iverilog, vvp = shutil.which("iverilog"), shutil.which("vvp")
-    if iverilog is None or vvp is None:
-        missing = "iverilog" if iverilog is None else "vvp"
-        raise SpecError("simulator", f"{missing} not found on PATH",
-                        "Icarus Verilog 11 or later installed (distribution package iverilog; `make tools`)")
-    return iverilog, vvp
+    return icarus_tools()
 
 
 def count_hex_words(path: str | Path) -> int | None:
