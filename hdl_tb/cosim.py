@@ -46,6 +46,7 @@ import numpy as np
 
 from refmodel.block_spec import BlockSpec, spec_from_dict
 from refmodel.errors import SpecError, require
+from refmodel.spec_fields import integer_list
 from vectors.writers import ParseError, parse_fixed
 
 from . import mismatch_report
@@ -198,17 +199,22 @@ def _words_for_run(folder: Path, config: Mapping, samples: int | None) -> int:
 
 
 def parse_frames(text) -> tuple[int, ...]:
-    """``--frames``: a comma-separated list of frame numbers (``3,17,40``), or a sequence of ints."""
-    if isinstance(text, str):
-        parts = [p.strip() for p in text.split(",") if p.strip()]
-        ok = bool(parts) and all(p.isdigit() for p in parts)
-        require(ok, "--frames", f"got {text!r}", "frame numbers separated by commas, e.g. 3,17,40")
-        values = [int(p) for p in parts]
-    else:
-        values = list(text)
-        require(bool(values) and all(isinstance(v, int) and not isinstance(v, bool) and v >= 0 for v in values),
-                "--frames", f"got {text!r}", "frame numbers >= 0")
-    return tuple(sorted(set(values)))
+    """``--frames``: frame numbers as ``3,17,40``, a range ``3:9`` (inclusive) or both, or a sequence of ints."""
+    return tuple(sorted(integer_list("--frames", text, 0, 2**31 - 1)))
+
+
+def frames_text(frames: Sequence[int]) -> str:
+    """Frame numbers as ``--frames`` takes them, runs of consecutive frames as ranges (``0:46,50``)."""
+    parts: list[str] = []
+    values = sorted(set(frames))
+    k = 0
+    while k < len(values):
+        j = k
+        while j + 1 < len(values) and values[j + 1] == values[j] + 1:
+            j += 1
+        parts.append(str(values[k]) if j == k else f"{values[k]}:{values[j]}")
+        k = j + 1
+    return ",".join(parts)
 
 
 def _select_frames(folder: Path, config: Mapping, where: Path, frames: tuple[int, ...]) -> tuple[str, str, int]:
@@ -219,7 +225,8 @@ def _select_frames(folder: Path, config: Mapping, where: Path, frames: tuple[int
     bounds = mismatch_report.frame_bounds(((stim >> np.uint64(int(config["input_bits"]))) & np.uint64(1)).astype(bool))
     n_frames = bounds.size - 1
     bad = [f for f in frames if f >= n_frames]
-    require(not bad, "--frames", f"frame {bad[0]} does not exist", f"frame numbers 0..{n_frames - 1}")
+    if bad:
+        raise SpecError("--frames", f"frame {bad[0]} does not exist", f"frame numbers 0..{n_frames - 1}")
     pick = [i for f in frames for i in range(int(bounds[f]), int(bounds[f + 1]))]
     sub = where / "frames"
     sub.mkdir(parents=True, exist_ok=True)
@@ -368,6 +375,10 @@ def run_folder(folder: str | Path, mode: str = "bulk", *, samples: int | None = 
     else:
         result = _run_cocotb(folder, config, mode, where, words, settings, waves, simulator, stim_rel, exp_rel)
     report = None if result.passed else _report(folder, config, where, stim_rel, exp_rel, words, chosen)
+    if chosen and result.first_mismatch:
+        # The benches count words and frames within what they streamed; the report has the set's numbers.
+        result = dataclasses.replace(result, first_mismatch=f"{result.first_mismatch} (word and frame counted "
+                                     "within the streamed frames)")
     result = dataclasses.replace(result, simulator=simulator, seed=int(settings["seed"]),
                                  gap_percent=int(settings["gap_percent"]),
                                  stall_percent=int(settings["stall_percent"]), sink=settings["sink"],
@@ -542,7 +553,7 @@ def rerun_command(spec: BlockSpec, *, rtl: Sequence[str | Path] = (), top: str |
                   simulator: str, seed: int, gap_percent: int, stall_percent: int, sink: str,
                   samples: int | None = None, frames: Sequence[int] | None = None) -> str:
     """The ``cfarvec cosim`` command that repeats a run (of only ``frames``, when given)."""
-    parts = ["cfarvec", "cosim", shlex.quote(str(spec.source or "SPEC"))]
+    parts = ["cfarvec", "cosim", shlex.quote(str(Path(spec.source).absolute()) if spec.source else "SPEC")]
     if rtl:
         parts += ["--rtl", *(shlex.quote(str(Path(f).absolute())) for f in rtl)]
     if top:
@@ -552,7 +563,7 @@ def rerun_command(spec: BlockSpec, *, rtl: Sequence[str | Path] = (), top: str |
     if samples is not None:  # the vector set depends on it (short sets get more random frames)
         parts += ["--samples", str(samples)]
     if frames:
-        parts += ["--frames", ",".join(str(f) for f in frames)]
+        parts += ["--frames", frames_text(frames)]
     return " ".join(parts)
 
 
@@ -641,7 +652,7 @@ def format_summary(result: CosimResult) -> str:
         f"{verdict}  {result.mode} co-simulation of {result.module} on {LABELS.get(result.simulator, result.simulator)}",
         f"  seed             {result.seed} (gaps {result.gap_percent}%, stalls {result.stall_percent}%)",
         f"  words compared   {result.words_compared:,} of {result.words_expected:,}"
-        + (f" (frames {','.join(map(str, result.frames))})" if result.frames else ""),
+        + (f" (frames {frames_text(result.frames)})" if result.frames else ""),
         f"  mismatches       {result.mismatches:,}",
         f"  missing / extra  {result.missing_words:,} / {result.extra_words:,}",
         f"  first mismatch   {result.first_mismatch or '-'}",
