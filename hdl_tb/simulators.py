@@ -46,8 +46,10 @@ DEFAULT_SIMULATOR = "icarus"
 #: Names for summaries.
 LABELS = {"icarus": "Icarus Verilog", "verilator": "Verilator"}
 #: Flags of every Verilator build (timing for the benches' delays; g++ 12 needs C++20 coroutines spelled out;
-#: the lint warnings of the benches and of the user's RTL are not errors).
-VERILATOR_FLAGS = ("--timing", "-CFLAGS", "-std=c++20 -fcoroutines", "-Wno-fatal", "-Wno-lint", "-Wno-style")
+#: the lint warnings of the benches and of the user's RTL are not errors, but an elaboration-time $fatal,
+#: the cores' parameter check, is).
+VERILATOR_FLAGS = ("--timing", "-CFLAGS", "-std=c++20 -fcoroutines", "-Wno-fatal", "-Werror-USERFATAL",
+                   "-Wno-lint", "-Wno-style")
 _PARAM_ERROR = re.compile(r"(\w+)_PARAMETER_ERROR__(\w+)")
 _ERROR_LINE = re.compile(r"(?i)%error|\berror\b|syntax error|I give up")
 
