@@ -8,7 +8,7 @@ with the same input gaps (20 %), output backpressure (30 %) and seed, by
 
 - the pure-Verilog self-checking testbench (``iverilog`` + ``vvp``);
 - the bulk cocotb bench (Verilog-side driver, comparison at the end);
-- the interactive cocotb bench (cocotbext-axi source and sink, word-by-word checks).
+- the interactive cocotb bench (Python feeds frame batches, checks each output frame as it arrives).
 
 The pure-Verilog and bulk runs alternate, twice each, and the faster run of
 each counts (the machines are shared and noisy); the interactive run, much

@@ -18,8 +18,8 @@ Write a folder that checks a streaming CFAR module against the project's
 bit-accurate model on Icarus Verilog: the golden vector set, a copy of the
 RTL (the reference core cfar_stream unless --rtl is given), a cocotb test
 module with two benches (bulk: a Verilog driver streams the vector file and
-Python compares at the end; interactive: Python drives with random gaps and
-backpressure and checks every word), its pytest runner, the pure-Verilog
+Python compares at the end; interactive: Python feeds frame batches to that
+driver and checks each output frame as it arrives), its pytest runner, the pure-Verilog
 self-checking testbench with a Makefile, and a README. The [ports] table of
 SPEC maps the benches onto your module's port names, reset level and output
 word layout; it is checked against the RTL with Icarus Verilog when present.

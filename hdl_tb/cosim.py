@@ -7,7 +7,7 @@ command); :func:`run_folder` runs one mode of a folder written by
 ``bulk``
     the cocotb bench whose Verilog driver streams the vector file (fast);
 ``interactive``
-    the cocotb bench in which Python drives and checks word by word;
+    the cocotb bench in which Python feeds frame batches and checks each output frame as it arrives;
 ``verilog``
     the pure-Verilog self-checking testbench, ``iverilog`` + ``vvp`` only.
 

@@ -462,8 +462,8 @@ def _generate(folder: Path, spec: BlockSpec, pm: PortMap, rtl_files: list[Path],
     modes = {
         "bulk": {"toplevel": BULK_TOP, "sources": rtl + adapter + [f"bench/{BULK_TOP}.v"],
                  "parameters": {**bench, "MAX_WORDS": max_words}, "testcase": "bulk_stream"},
-        "interactive": {"toplevel": pm.module, "sources": rtl, "parameters": dut_params,
-                        "testcase": "interactive_stream"},
+        "interactive": {"toplevel": BULK_TOP, "sources": rtl + adapter + [f"bench/{BULK_TOP}.v"],
+                        "parameters": {**bench, "MAX_WORDS": max_words}, "testcase": "interactive_stream"},
         "verilog": {"toplevel": VERILOG_TOP,
                     "sources": rtl + ([] if direct else adapter) + [f"bench/{VERILOG_TOP}.v"],
                     "parameters": {**bench, "MAX_WORDS": max_words}},
@@ -541,6 +541,7 @@ def _readme(spec: BlockSpec, pm: PortMap, config: dict, reference: bool) -> str:
         sink=("waits for TVALID before raising TREADY" if config["sink"] == "waits-for-valid"
               else "raises TREADY without looking at TVALID"),
         rtl_note=rtl_note, tb_note="" if pm.is_reference else " (instantiating the adapter)",
+        simulator=config["simulator"],
         clock=pm.clock, reset=pm.reset, reset_level="high" if pm.reset_active_high else "low",
         in_ports=", ".join(sig[r] for r in ("in_data", "in_valid", "in_ready", "in_last")),
         out_ports=", ".join(s for s in (sig[r] for r in ("out_data", "out_valid", "out_ready", "out_last")) if s),
