@@ -297,3 +297,18 @@ def test_synth_takes_the_users_rtl(tmp_path, capsys):
     assert main(["synth", str(spec_file), "--rtl", *rtl, "--top", "not_there"]) == 2
     err = capsys.readouterr().err
     assert err.startswith("cfarvec synth: error: --top") and err.count("\n") == 1
+
+
+def test_keep_refuses_the_current_folder_and_the_folders_of_the_spec_and_rtl(tmp_path, capsys, monkeypatch):
+    # Issue 15: `cosim --keep . --force` deleted the user's files. The current folder, an ancestor of it and a
+    # folder holding the spec or the RTL are refused, naming --keep; nothing is deleted.
+    work = tmp_path / "work"
+    work.mkdir()
+    spec_file = _write_toml(work / "spec.toml", _spec_data("seeded_core"))
+    rtl = [str(f) for f in _core(work)]
+    monkeypatch.chdir(work)
+    for target in (".", str(tmp_path), str(work), ""):
+        assert main(["cosim", str(spec_file), "--rtl", *rtl, "--keep", target, "--force"]) == 2
+        err = capsys.readouterr().err
+        assert err.startswith("cfarvec cosim: error: --keep") and err.count("\n") == 1
+    assert spec_file.is_file() and all(Path(f).is_file() for f in rtl)
