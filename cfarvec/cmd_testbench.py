@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import argparse
 
+from hdl_tb.simulators import DEFAULT_SIMULATOR, SIMULATORS
 from hdl_tb.tb_generator import DEFAULT_GAP_PERCENT, DEFAULT_STALL_PERCENT, write_testbench
 from refmodel.block_spec import load_spec
 
@@ -17,8 +18,8 @@ Write a folder that checks a streaming CFAR module against the project's
 bit-accurate model on Icarus Verilog: the golden vector set, a copy of the
 RTL (the reference core cfar_stream unless --rtl is given), a cocotb test
 module with two benches (bulk: a Verilog driver streams the vector file and
-Python compares at the end; interactive: Python drives with random gaps and
-backpressure and checks every word), its pytest runner, the pure-Verilog
+Python compares at the end; interactive: Python feeds frame batches to that
+driver and checks each output frame as it arrives), its pytest runner, the pure-Verilog
 self-checking testbench with a Makefile, and a README. The [ports] table of
 SPEC maps the benches onto your module's port names, reset level and output
 word layout; it is checked against the RTL with Icarus Verilog when present.
@@ -32,6 +33,8 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     add_bench_options(p)
     p.add_argument("-o", "--output", required=True, metavar="DIR", help="folder to create")
     p.add_argument("--force", action="store_true", help="replace DIR if it exists and is not empty")
+    p.add_argument("--simulator", choices=SIMULATORS, default=DEFAULT_SIMULATOR,
+                   help=f"default simulator of the folder's Makefile and pytest runner (default {DEFAULT_SIMULATOR})")
     p.set_defaults(func=run)
     return p
 
@@ -55,11 +58,13 @@ def run(args: argparse.Namespace) -> int:
     """Write the folder and print what is in it."""
     spec = load_spec(args.spec)
     bench = write_testbench(spec, args.output, rtl=args.rtl, top=args.top, force=args.force, seed=args.seed,
-                            samples=args.samples, gap_percent=args.gaps, stall_percent=args.stalls)
+                            samples=args.samples, gap_percent=args.gaps, stall_percent=args.stalls,
+                            simulator=args.simulator)
     c = bench.config
     print(f"wrote {args.output}: {c['port_map']['module']}, {c['words']} of {c['total_words']} samples, "
           f"{c['gap_percent']}% gaps, {c['stall_percent']}% stalls, seed {c['seed']}")
     if not bench.ports_checked:
         print("note: iverilog not found, the port map was not checked against the RTL")
-    print(f"run: make -C {args.output} verilog | bulk | interactive   (or python -m pytest in {args.output})")
+    print(f"run: make -C {args.output} verilog | bulk | interactive [SIMULATOR=icarus|verilator]   "
+          f"(or python -m pytest in {args.output})")
     return 0

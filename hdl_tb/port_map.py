@@ -42,8 +42,9 @@ Example ``[ports]`` table (all values are the defaults except where noted)::
     threshold = 3
     cut = 24
 
-    [ports.parameters]          # extra integer parameters given to the module
-    FIFO_DEPTH = 4
+    [ports.parameters]          # extra parameters given to the module: an integer, or the name of a
+    FIFO_DEPTH = 4              # quantity of the spec (DERIVED_QUANTITIES), so that a change of the spec
+    MY_ALPHA = "alpha_int"      # (Pfa, widths) reaches the module: "alpha_int", "threshold_bits", ...
 """
 
 from __future__ import annotations
@@ -58,7 +59,7 @@ from typing import Any, Mapping, Sequence
 
 from refmodel.block_spec import BlockSpec
 from refmodel.errors import SpecError, require
-from refmodel.spec_fields import integer
+from refmodel.spec_fields import choice, integer
 from refmodel.fixedpoint.word_format import output_field_offsets
 
 #: Top module of the reference core.
@@ -82,6 +83,13 @@ OUTPUT_FIELDS = ("cut", "threshold", "det", "valid", "last")
 #: Module names the generated testbench uses itself.
 RESERVED_MODULES = ("cfarvec_port_adapter", "cfarvec_bulk_top", "cfarvec_port_probe", "cfar_stream_tb",
                     "cocotb_iverilog_dump")
+#: Quantities of the spec a ``[ports.parameters]`` value may name (``BlockSpec`` attributes, the names of the
+#: manifest's ``derived`` table and of the spec fields): the constant A, the widths, the window.
+DERIVED_QUANTITIES = ("alpha_int", "alpha_bits", "drop_bits", "threshold_bits", "threshold_frac_bits", "sum_bits",
+                      "side_sum_bits", "statistic_bits", "product_bits", "input_bits", "output_bits",
+                      "window_length", "half_window", "ref_per_side", "guard_per_side", "n_ref",
+                      "pipeline_stages", "latency_cycles", "drain_cycles", "mean_shift", "frame_length")
+
 #: Reference-core parameters (passed when ``core_parameters`` is true).
 CORE_PARAMETER_NAMES = ("INPUT_BITS", "REF_CELLS", "GUARD_CELLS", "KIND", "EDGE", "SUM_BITS", "ALPHA_INT",
                         "DROP_BITS", "THRESHOLD_FRAC_BITS", "THRESHOLD_BITS", "ROUNDING", "OVERFLOW", "COMPARE_GE",
@@ -307,13 +315,18 @@ def port_map_from_spec(spec: BlockSpec, *, top: str | None = None) -> PortMap:
 
     params_raw = raw.get("parameters", {})
     require(isinstance(params_raw, Mapping), "ports.parameters", f"got {params_raw!r}",
-            "a table of NAME = integer")
+            "a table of NAME = integer or NAME = \"<quantity of the spec>\"")
     params: dict[str, int] = {}
     for name, value in params_raw.items():
         check_identifier(f"ports.parameters.{name}", name)
         require(not (core and name in CORE_PARAMETER_NAMES), f"ports.parameters.{name}",
                 "is already given by core_parameters = true", "another name, or core_parameters = false")
-        params[name] = integer(f"ports.parameters.{name}", value, -(2**31), 2**31 - 1)
+        if isinstance(value, str):
+            quantity = choice(f"ports.parameters.{name}", value, DERIVED_QUANTITIES)
+            value = getattr(spec, quantity)
+            params[name] = integer(f"ports.parameters.{name}", int(value), 0, 2**64 - 1)
+        else:
+            params[name] = integer(f"ports.parameters.{name}", value, -(2**31), 2**31 - 1)
 
     standard = output_field_offsets(spec)
     fields_raw = raw.get("out_fields", {})

@@ -7,7 +7,8 @@ Verilog:
 ``vectors/``
     the golden vector set (:func:`vectors.vector_set.write_vector_set`);
 ``rtl/``
-    a copy of the RTL under test (the reference core by default);
+    a copy of the reference core (your own RTL is referred to where it is,
+    so every run builds the current files);
 ``bench/``
     ``cfarvec_port_adapter.v`` (the module seen through the reference core's
     interface, per the port map), ``cfarvec_bulk_top.v`` (Verilog-side bulk
@@ -48,13 +49,16 @@ import numpy as np
 
 from refmodel.block_spec import BlockSpec
 from refmodel.errors import SpecError, require
-from refmodel.output_folder import staged_folder
+from refmodel.output_folder import check_not_precious, staged_folder
 from refmodel.fixedpoint.word_format import output_field_offsets
 from vectors.manifest import tool_version
 from vectors.vector_set import vector_settings, write_vector_set
 from vectors.writers import parse_fixed
 
 from .core_params import BENCH_SOURCE, CORE_SOURCES, core_parameters
+from .pause_pattern import file_name as pattern_file_name
+from .pause_pattern import write_pattern
+from .simulators import DEFAULT_SIMULATOR, SIMULATORS, VERILATOR_FLAGS, check_simulator
 from .port_map import PortMap, check_against_rtl, port_map_from_spec, verilog_literal
 
 TEMPLATE_DIR = Path(__file__).resolve().parent / "templates"
@@ -309,7 +313,7 @@ _SAFE_PATH = re.compile(r"/?([A-Za-z0-9_.+-]+/)*[A-Za-z0-9_.+-]+")
 
 
 def resolve_rtl(rtl: Sequence[str | Path]) -> list[Path]:
-    """Check the ``--rtl`` files: they exist and their names differ (they are copied into one folder)."""
+    """Check the ``--rtl`` files: they exist, are Verilog, and their paths can be written into a Makefile."""
     files = []
     names: set[str] = set()
     for f in rtl:
@@ -328,7 +332,8 @@ def resolve_rtl(rtl: Sequence[str | Path]) -> list[Path]:
 def write_testbench(spec: BlockSpec, output: str | Path, *, rtl: Sequence[str | Path] = (), top: str | None = None,
                     force: bool = False, seed: int | None = None, samples: int | None = None,
                     gap_percent: int = DEFAULT_GAP_PERCENT, stall_percent: int = DEFAULT_STALL_PERCENT,
-                    sink: str = DEFAULT_SINK, check_ports: bool = True) -> BenchFolder:
+                    sink: str = DEFAULT_SINK, check_ports: bool = True, simulator: str = DEFAULT_SIMULATOR,
+                    output_field: str = "--output") -> BenchFolder:
     """Generate a co-simulation testbench folder.
 
     Parameters
@@ -359,6 +364,10 @@ def write_testbench(spec: BlockSpec, output: str | Path, *, rtl: Sequence[str | 
     check_ports : bool
         Elaborate the module with the port map first (needs Icarus Verilog;
         skipped, with ``ports_checked = False``, when it is missing).
+    simulator : {"icarus", "verilator"}
+        The default simulator of the folder's Makefile and pytest runner.
+    output_field : str
+        The option that named ``output``, for errors (``--output``, ``--keep``).
 
     Returns
     -------
@@ -384,6 +393,7 @@ def write_testbench(spec: BlockSpec, output: str | Path, *, rtl: Sequence[str | 
     gap_percent = _check_percent("--gaps", gap_percent)
     stall_percent = _check_percent("--stalls", stall_percent)
     check_sink(sink)
+    check_simulator(simulator)
     if samples is not None:
         require(isinstance(samples, int) and not isinstance(samples, bool) and samples >= 1, "--samples",
                 f"got {samples!r}", "an integer >= 1")
@@ -406,16 +416,18 @@ def write_testbench(spec: BlockSpec, output: str | Path, *, rtl: Sequence[str | 
                               module_field="--top" if top is not None else "ports.module")
             ports_checked = True
 
+    holds = tuple(f for f in (spec.source, *rtl) if f)
+    check_not_precious(output, output_field, holds)
     out = Path(output).absolute()
-    with staged_folder(out, force) as tmp:
+    with staged_folder(out, force, output_field) as tmp:
         config = _generate(tmp, spec, pm, rtl_files, reference, bench, dut_params, seed, samples,
-                           settings.seed if seed is None else seed, gap_percent, stall_percent, sink)
+                           settings.seed if seed is None else seed, gap_percent, stall_percent, sink, simulator)
     return BenchFolder(out, MappingProxyType(config), ports_checked)
 
 
 def _generate(folder: Path, spec: BlockSpec, pm: PortMap, rtl_files: list[Path], reference: bool,
               bench: dict, dut_params: dict, seed: int | None, samples: int | None, bench_seed: int,
-              gap_percent: int, stall_percent: int, sink: str) -> dict:
+              gap_percent: int, stall_percent: int, sink: str, simulator: str) -> dict:
     manifest = _write_vectors(spec, folder / "vectors", seed, samples)
     total = int(manifest["totals"]["samples"])
     config_stub = {"stimulus": "vectors/stimulus.hex", "input_bits": spec.input_bits}
@@ -424,12 +436,25 @@ def _generate(folder: Path, spec: BlockSpec, pm: PortMap, rtl_files: list[Path],
 
     (folder / "rtl").mkdir()
     rtl = []
+    copies: dict[str, str] = {}
     for src in rtl_files:
-        shutil.copyfile(src, folder / "rtl" / src.name)
-        rtl.append(f"rtl/{src.name}")
+        if reference:
+            shutil.copyfile(src, folder / "rtl" / src.name)
+            rtl.append(f"rtl/{src.name}")
+        elif _SAFE_PATH.fullmatch(str(src.resolve())):
+            # The user's files where they are: the next run builds a fix.
+            rtl.append(str(src.resolve()))
+        else:
+            # A path a Makefile cannot hold (spaces, non-ASCII): a copy, refreshed by every cfarvec run.
+            shutil.copyfile(src, folder / "rtl" / src.name)
+            rtl.append(f"rtl/{src.name}")
+            copies[f"rtl/{src.name}"] = str(src.resolve())
     bench_dir = folder / "bench"
     bench_dir.mkdir()
     (bench_dir / "timescale.f").write_text("+timescale+1ns/1ps\n", encoding="ascii")
+    # The default gap and stall patterns, so that `make verilog` needs no Python with the default knobs.
+    for stream, percent in (("gaps", gap_percent), ("stalls", stall_percent)):
+        write_pattern(folder / "patterns", stream, percent, bench_seed)
     (bench_dir / f"{ADAPTER_TOP}.v").write_text(adapter_source(pm, bench), encoding="ascii")
     (bench_dir / f"{BULK_TOP}.v").write_text(bulk_top_source(bench, max_words), encoding="ascii")
     direct = pm.is_reference
@@ -439,8 +464,8 @@ def _generate(folder: Path, spec: BlockSpec, pm: PortMap, rtl_files: list[Path],
     modes = {
         "bulk": {"toplevel": BULK_TOP, "sources": rtl + adapter + [f"bench/{BULK_TOP}.v"],
                  "parameters": {**bench, "MAX_WORDS": max_words}, "testcase": "bulk_stream"},
-        "interactive": {"toplevel": pm.module, "sources": rtl, "parameters": dut_params,
-                        "testcase": "interactive_stream"},
+        "interactive": {"toplevel": BULK_TOP, "sources": rtl + adapter + [f"bench/{BULK_TOP}.v"],
+                        "parameters": {**bench, "MAX_WORDS": max_words}, "testcase": "interactive_stream"},
         "verilog": {"toplevel": VERILOG_TOP,
                     "sources": rtl + ([] if direct else adapter) + [f"bench/{VERILOG_TOP}.v"],
                     "parameters": {**bench, "MAX_WORDS": max_words}},
@@ -467,8 +492,10 @@ def _generate(folder: Path, spec: BlockSpec, pm: PortMap, rtl_files: list[Path],
         "stall_percent": stall_percent,
         "sink": sink,
         "seed": bench_seed,
+        "simulator": simulator,
         "port_map": pm.to_dict(),
         "rtl": rtl,
+        "rtl_copies": copies,
         "modes": modes,
     }
     (folder / CONFIG_NAME).write_text(json.dumps(config, indent=2, sort_keys=True) + "\n", encoding="utf-8")
@@ -483,13 +510,15 @@ def _generate(folder: Path, spec: BlockSpec, pm: PortMap, rtl_files: list[Path],
 def _makefile(config: dict) -> str:
     m = config["modes"]["verilog"]
     params = " \\\n".join(f"\t  -P{VERILOG_TOP}.{k}={v}" for k, v in m["parameters"].items()) + " \\"
+    vparams = " \\\n".join(f"\t  -G{k}={v}" for k, v in m["parameters"].items()) + " \\"
     # The interpreter that has cfarvec (and so cocotb) installed, when its path is safe to write unquoted.
     python = sys.executable if sys.executable and _SAFE_PATH.fullmatch(sys.executable) else "python3"
     return render("Makefile.tmpl", version=tool_version(), python=python, gap_percent=config["gap_percent"],
                   stall_percent=config["stall_percent"], seed=config["seed"], words=config["words"],
-                  sink=config["sink"],
+                  sink=config["sink"], simulator=config["simulator"],
+                  verilator_flags=" ".join(f"'{f}'" if " " in f else f for f in VERILATOR_FLAGS),
                   verilog_sources=" ".join(m["sources"]), verilog_parameters=params,
-                  stimulus=config["stimulus"], expected=config["expected"])
+                  verilator_parameters=vparams, stimulus=config["stimulus"], expected=config["expected"])
 
 
 def _readme(spec: BlockSpec, pm: PortMap, config: dict, reference: bool) -> str:
@@ -497,8 +526,15 @@ def _readme(spec: BlockSpec, pm: PortMap, config: dict, reference: bool) -> str:
     block = (f"{spec.kind.upper()} CFAR, R = {spec.ref_per_side} reference and G = {spec.guard_per_side} guard "
              f"cells per side, edge policy {spec.edge}, {spec.input_bits}-bit samples, {spec.threshold_bits}-bit "
              f"threshold ({spec.rounding}, {spec.overflow})")
-    rtl_note = ("a copy of the reference core (`cfar_stream`)" if reference
-                else f"a copy of the RTL under test (top module `{pm.module}`)")
+    if reference:
+        rtl_note = "a copy of the reference core (`cfar_stream`)"
+    elif config["rtl_copies"]:
+        rtl_note = (f"copies of the RTL under test (top module `{pm.module}`), whose paths a Makefile cannot "
+                    f"hold; every `cfarvec` run refreshes them from {', '.join(config['rtl_copies'].values())}, "
+                    "`make` does not")
+    else:
+        rtl_note = (f"nothing: the RTL under test (top module `{pm.module}`) is used where it is "
+                    f"({', '.join(config['rtl'])}), so every run builds the current files")
     return render(
         "README.md.tmpl", version=tool_version(), module=pm.module,
         spec_name=Path(spec.source).name if spec.source else "a block spec", block=block,
@@ -507,6 +543,7 @@ def _readme(spec: BlockSpec, pm: PortMap, config: dict, reference: bool) -> str:
         sink=("waits for TVALID before raising TREADY" if config["sink"] == "waits-for-valid"
               else "raises TREADY without looking at TVALID"),
         rtl_note=rtl_note, tb_note="" if pm.is_reference else " (instantiating the adapter)",
+        simulator=config["simulator"],
         clock=pm.clock, reset=pm.reset, reset_level="high" if pm.reset_active_high else "low",
         in_ports=", ".join(sig[r] for r in ("in_data", "in_valid", "in_ready", "in_last")),
         out_ports=", ".join(s for s in (sig[r] for r in ("out_data", "out_valid", "out_ready", "out_last")) if s),

@@ -29,6 +29,23 @@ def check_target(out: Path, force: bool, field: str = "--output") -> None:
                     "a new or empty folder, or --force to replace it")
 
 
+def check_not_precious(output: str | Path, field: str = "--output", holds: tuple = ()) -> None:
+    """Refuse an empty path, the current folder or any of its ancestors, and a folder holding ``holds``.
+
+    A forced replacement of such a folder would delete the user's own files
+    (the current work, the spec, the RTL).
+    """
+    require(str(output) != "", field, "an empty path", "a folder path")
+    out = Path(output).absolute().resolve()
+    here = Path.cwd().resolve()
+    require(out != here and out not in here.parents, field, f"{str(out)!r} is the current folder or holds it",
+            "a new folder, or one that holds neither the current folder nor your files")
+    for f in holds:
+        p = Path(f).absolute().resolve()
+        require(out != p and out not in p.parents, field, f"{str(out)!r} holds {str(p)!r}",
+                "a folder that does not hold the spec or the RTL")
+
+
 def _move_into_place(tmp: Path, out: Path) -> None:
     if out.exists() and any(out.iterdir()):
         old = Path(tempfile.mkdtemp(prefix=f".{out.name}.old-", dir=out.parent))
@@ -63,6 +80,7 @@ def staged_folder(output: str | Path, force: bool = False, field: str = "--outpu
         For a target that is a file, a non-empty target without ``force``, or
         a parent folder that cannot be made; nothing is written then.
     """
+    check_not_precious(output, field)
     out = Path(output).absolute()
     check_target(out, force, field)
     try:

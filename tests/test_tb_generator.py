@@ -67,7 +67,9 @@ def test_layout(folder):
     expected = {"README.md", "Makefile", "bench_config.json", "cfarvec_cocotb_bench.py", "test_cfarvec_cosim.py",
                 "vectors/stimulus.hex", "vectors/expected.hex", "vectors/manifest.json",
                 "bench/cfarvec_port_adapter.v", "bench/cfarvec_bulk_top.v", "bench/cfar_stream_tb.v",
-                "bench/timescale.f", *(f"rtl/{src.name}" for src in CORE_SOURCES)}
+                "bench/timescale.f", *(f"rtl/{src.name}" for src in CORE_SOURCES),
+                # The default gap and stall patterns (hdl_tb/pause_pattern.py), so `make verilog` needs no Python.
+                "patterns/gaps-p20-s7.mem", "patterns/stalls-p30-s7.mem"}
     found = {str(p.relative_to(folder)) for p in folder.rglob("*") if p.is_file()}
     assert found == expected
 
@@ -93,8 +95,10 @@ def test_config_matches_the_vector_set(folder):
     # The stream ends with a last marker (docs/bit-true.md section 1, bit W_in).
     assert stim[-1] >> 10 & 1 == 1
     assert cfg["port_map"]["module"] == "cfar_stream"
-    assert cfg["modes"]["interactive"]["toplevel"] == "cfar_stream"
-    assert cfg["modes"]["interactive"]["parameters"] == core_parameters(_spec())
+    # Both cocotb benches run the Verilog driver around the module (the interactive one feeds it frame batches).
+    assert cfg["modes"]["interactive"]["toplevel"] == cfg["modes"]["bulk"]["toplevel"] == "cfarvec_bulk_top"
+    assert cfg["modes"]["interactive"]["parameters"] == {**core_parameters(_spec()), "MAX_WORDS":
+                                                         cfg["modes"]["bulk"]["parameters"]["MAX_WORDS"]}
     assert cfg["sink"] == "independent"
 
 
@@ -331,7 +335,7 @@ def test_generated_makefile_runs_the_benches(tmp_path):
     assert proc.returncode == 0, proc.stdout[-2000:] + proc.stderr[-2000:]
     words = read_config(out)["words"]
     assert f"PASS {words}" in proc.stdout and "1 passed" in proc.stdout
-    received = _hex_words(out / "sim_build" / "verilog" / "received.hex")
+    received = _hex_words(out / "sim_build" / "verilog-icarus" / "received.hex")
     assert received == _hex_words(out / "vectors" / "expected.hex")[:words]
     assert "SINK_WAITS_FOR_VALID=0" in proc.stdout
     proc = subprocess.run(["make", "-s", "verilog", "SINK=waits-for-valid"], cwd=out, capture_output=True, text=True,

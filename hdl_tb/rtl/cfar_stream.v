@@ -1,5 +1,16 @@
 `timescale 1ns/1ps
 `default_nettype none
+// Parameter check, used inside a generate branch that only an illegal
+// parameter set elaborates. Verilator: an elaboration-time $fatal (IEEE Std
+// 1800-2017, 20.11); it refuses, even in a branch that is never elaborated,
+// the instantiation of a module that does not exist. Icarus Verilog (which
+// rejects $fatal inside a generate block) and Yosys: the instantiation of a
+// module that does not exist, whose name says what is wrong.
+`ifdef VERILATOR
+`define CFAR_STREAM_STOP(name) $fatal(1, `"name`");
+`else
+`define CFAR_STREAM_STOP(name) name u_stop ();
+`endif
 // cfar_stream: streaming one-dimensional CFAR detector (CA, GO, SO), the
 // reference core of cfarvec. It reproduces docs/bit-true.md word for word:
 // running side sums modulo 2^SUM_BITS, the noise statistic S, the exact
@@ -131,64 +142,65 @@ module cfar_stream #(
     localparam [MUL_BITS-1:0] ALPHA_MUL = ALPHA_INT;
 
     // ------------------------------------------------------------------
-    // Illegal parameter combinations stop elaboration: the instantiated
-    // module does not exist and its name says what is wrong.
+    // Illegal parameter combinations stop elaboration with a message that
+    // names what is wrong (`CFAR_STREAM_STOP, defined above the module; see
+    // docs/reference-core.md "Parameter checks").
     // ------------------------------------------------------------------
     generate
         if (KIND == 3) begin : g_err_kind_os
-            cfar_stream_PARAMETER_ERROR__KIND_3_os_is_not_supported_by_this_core u_stop ();
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__KIND_3_os_is_not_supported_by_this_core)
         end else if (KIND < 0 || KIND > 3) begin : g_err_kind
-            cfar_stream_PARAMETER_ERROR__KIND_must_be_0_ca_1_go_or_2_so u_stop ();
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__KIND_must_be_0_ca_1_go_or_2_so)
         end
         if (EDGE == 3) begin : g_err_edge_circular
-            cfar_stream_PARAMETER_ERROR__EDGE_3_circular_is_not_supported_by_this_core u_stop ();
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__EDGE_3_circular_is_not_supported_by_this_core)
         end else if (EDGE < 0 || EDGE > 3) begin : g_err_edge
-            cfar_stream_PARAMETER_ERROR__EDGE_must_be_0_skip_1_zero_pad_or_2_one_sided u_stop ();
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__EDGE_must_be_0_skip_1_zero_pad_or_2_one_sided)
         end
         if (INPUT_BITS < 1 || INPUT_BITS > 32) begin : g_err_input_bits
-            cfar_stream_PARAMETER_ERROR__INPUT_BITS_must_be_1_to_32 u_stop ();
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__INPUT_BITS_must_be_1_to_32)
         end
         if (REF_CELLS < 1) begin : g_err_ref_cells
-            cfar_stream_PARAMETER_ERROR__REF_CELLS_must_be_at_least_1 u_stop ();
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__REF_CELLS_must_be_at_least_1)
         end
         if (GUARD_CELLS < 0) begin : g_err_guard_cells
-            cfar_stream_PARAMETER_ERROR__GUARD_CELLS_must_be_at_least_0 u_stop ();
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__GUARD_CELLS_must_be_at_least_0)
         end
         if (SUM_BITS < SIDE_BITS) begin : g_err_sum_bits
-            cfar_stream_PARAMETER_ERROR__SUM_BITS_below_bitlen_of_R_times_max_sample u_stop ();
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__SUM_BITS_below_bitlen_of_R_times_max_sample)
         end
         if (ALPHA_INT == 64'd0) begin : g_err_alpha
-            cfar_stream_PARAMETER_ERROR__ALPHA_INT_must_be_at_least_1 u_stop ();
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__ALPHA_INT_must_be_at_least_1)
         end
         if (DROP_BITS < 0) begin : g_err_drop_bits
-            cfar_stream_PARAMETER_ERROR__DROP_BITS_must_be_at_least_0 u_stop ();
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__DROP_BITS_must_be_at_least_0)
         end
         if (THRESHOLD_FRAC_BITS < 0) begin : g_err_threshold_frac_bits
-            cfar_stream_PARAMETER_ERROR__THRESHOLD_FRAC_BITS_must_be_at_least_0 u_stop ();
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__THRESHOLD_FRAC_BITS_must_be_at_least_0)
         end
         if (THRESHOLD_BITS < 1) begin : g_err_threshold_bits
-            cfar_stream_PARAMETER_ERROR__THRESHOLD_BITS_must_be_at_least_1 u_stop ();
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__THRESHOLD_BITS_must_be_at_least_1)
         end
         if (ROUNDING < 0 || ROUNDING > 2) begin : g_err_rounding
-            cfar_stream_PARAMETER_ERROR__ROUNDING_must_be_0_floor_1_half_up_or_2_half_even u_stop ();
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__ROUNDING_must_be_0_floor_1_half_up_or_2_half_even)
         end
         if (OVERFLOW < 0 || OVERFLOW > 1) begin : g_err_overflow
-            cfar_stream_PARAMETER_ERROR__OVERFLOW_must_be_0_saturate_or_1_wrap u_stop ();
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__OVERFLOW_must_be_0_saturate_or_1_wrap)
         end
         if (COMPARE_GE < 0 || COMPARE_GE > 1) begin : g_err_compare
-            cfar_stream_PARAMETER_ERROR__COMPARE_GE_must_be_0_or_1 u_stop ();
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__COMPARE_GE_must_be_0_or_1)
         end
         if (TRUNCATE_PARTIALS < 0 || TRUNCATE_PARTIALS > 1) begin : g_err_truncate
-            cfar_stream_PARAMETER_ERROR__TRUNCATE_PARTIALS_must_be_0_or_1 u_stop ();
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__TRUNCATE_PARTIALS_must_be_0_or_1)
         end
         if (TRUNCATE_PARTIALS == 1 && ROUNDING != 0) begin : g_err_truncate_rounding
-            cfar_stream_PARAMETER_ERROR__TRUNCATE_PARTIALS_needs_ROUNDING_0_floor u_stop ();
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__TRUNCATE_PARTIALS_needs_ROUNDING_0_floor)
         end
         if (PIPELINE_STAGES < 1) begin : g_err_stages
-            cfar_stream_PARAMETER_ERROR__PIPELINE_STAGES_must_be_at_least_1 u_stop ();
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__PIPELINE_STAGES_must_be_at_least_1)
         end
         if (SRST_LEVEL < 0 || SRST_LEVEL > 1) begin : g_err_srst_level
-            cfar_stream_PARAMETER_ERROR__SRST_LEVEL_must_be_0_or_1 u_stop ();
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__SRST_LEVEL_must_be_0_or_1)
         end
     endgenerate
 
@@ -465,4 +477,5 @@ module cfar_stream #(
     assign m_axis_tlast  = out_word_reg[OUT_BITS-1];
 
 endmodule
+`undef CFAR_STREAM_STOP
 `default_nettype wire

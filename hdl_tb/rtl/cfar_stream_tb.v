@@ -80,16 +80,23 @@ module cfar_stream_tb;
     parameter EXPECT_FILE = "expected.hex";
     // File receiving every output word in hex, one per line.
     parameter OUT_FILE = "received.hex";
-    // Words to use from the files; 0 = all (the first unwritten entry ends the list).
+    // Words in the stimulus and expected files (> 0; +N_WORDS at run time). The bench is told the count
+    // rather than looking for unwritten (x) entries, which a two-state simulator such as Verilator lacks.
     parameter integer N_WORDS = 0;
+    // Words in the expected file; 0 = N_WORDS. A different count is reported as an error.
+    parameter integer N_EXPECT = 0;
     // Depth of the word memories (at least the number of words in the files).
     parameter integer MAX_WORDS = 65536;
     // Percent of cycles the source leaves s_axis_tvalid low when it has a word.
     parameter integer GAP_PERCENT = 0;
     // Percent of cycles the sink holds m_axis_tready low.
     parameter integer STALL_PERCENT = 0;
-    // Seed of the pseudo-random gap and stall sequences.
+    // Seed of the pseudo-random gap and stall sequences (used when no pattern file is given).
     parameter integer SEED = 1;
+    // Gap and stall patterns, one binary digit per line ($readmemb), entry k for the k-th draw, repeating after
+    // PATTERN_LENGTH entries (hdl_tb/pause_pattern.py writes them from the seed). "" = draw with xorshift32.
+    parameter GAP_FILE = "";
+    parameter STALL_FILE = "";
     // 1 = dump waveforms to DUMP_FILE.
     parameter integer DUMP = 0;
     // Waveform file name (VCD unless the simulator is told otherwise).
@@ -118,6 +125,8 @@ module cfar_stream_tb;
     localparam integer LAST_BIT = DET_BIT + 2;
     // Clock period in ns.
     localparam integer CLK_PERIOD = 10;
+    // Entries of a pause pattern (a power of two).
+    localparam integer PATTERN_LENGTH = 65536;
 
     // ---------------- DUT ----------------
     reg                  clk = 1'b0;
@@ -172,6 +181,16 @@ module cfar_stream_tb;
     reg [8*1024-1:0] expect_name;
     reg [8*1024-1:0] out_name;
     reg [8*1024-1:0] dump_name;
+    reg [8*1024-1:0] gap_name;
+    reg [8*1024-1:0] stall_name;
+    reg             gap_mem   [0:PATTERN_LENGTH-1];
+    reg             stall_mem [0:PATTERN_LENGTH-1];
+    reg             gap_from_file;
+    reg             stall_from_file;
+    integer         gap_k   = 0;
+    integer         stall_k = 0;
+    reg             gap_now;
+    reg             stall_now;
     integer gap_pct;
     integer stall_pct;
     integer seed;
@@ -270,15 +289,32 @@ module cfar_stream_tb;
         end
     endfunction
 
+    // The sink's next stall draw: the pattern file's next entry, or xorshift32.
+    task draw_stall;
+        begin
+            stall_now = 1'b0;
+            if (stall_from_file) begin
+                stall_now = stall_mem[stall_k];
+                stall_k   = (stall_k + 1) % PATTERN_LENGTH;
+            end else if (stall_pct > 0) begin
+                stall_state = xorshift32(stall_state);
+                stall_now   = (stall_state % 100) < stall_pct;
+            end
+        end
+    endtask
+
     initial begin
         stim_name   = STIM_FILE;
         expect_name = EXPECT_FILE;
         out_name    = OUT_FILE;
         dump_name   = DUMP_FILE;
+        gap_name    = GAP_FILE;
+        stall_name  = STALL_FILE;
         gap_pct     = GAP_PERCENT;
         stall_pct   = STALL_PERCENT;
         seed        = SEED;
         n_words     = N_WORDS;
+        n_expect    = N_EXPECT;
         timeout     = TIMEOUT_CYCLES;
         max_reports = MAX_REPORTS;
         sink_wait   = SINK_WAITS_FOR_VALID;
@@ -288,10 +324,13 @@ module cfar_stream_tb;
         if ($value$plusargs("EXPECT_FILE=%s", expect_name)) ;
         if ($value$plusargs("OUT_FILE=%s", out_name)) ;
         if ($value$plusargs("DUMP_FILE=%s", dump_name)) ;
+        if ($value$plusargs("GAP_FILE=%s", gap_name)) ;
+        if ($value$plusargs("STALL_FILE=%s", stall_name)) ;
         if ($value$plusargs("GAP_PERCENT=%d", gap_pct)) ;
         if ($value$plusargs("STALL_PERCENT=%d", stall_pct)) ;
         if ($value$plusargs("SEED=%d", seed)) ;
         if ($value$plusargs("N_WORDS=%d", n_words)) ;
+        if ($value$plusargs("N_EXPECT=%d", n_expect)) ;
         if ($value$plusargs("TIMEOUT_CYCLES=%d", timeout)) ;
         if ($value$plusargs("MAX_REPORTS=%d", max_reports)) ;
         if ($value$plusargs("SINK_WAITS_FOR_VALID=%d", sink_wait)) ;
@@ -301,6 +340,11 @@ module cfar_stream_tb;
         // xorshift32 needs a non-zero state.
         gap_state   = (seed == 0) ? 32'h2545_F491 : seed;
         stall_state = ((seed ^ 32'h5A5A_3C3C) == 0) ? 32'h2545_F491 : (seed ^ 32'h5A5A_3C3C);
+
+        gap_from_file   = (gap_name != 0) && gap_pct > 0;
+        stall_from_file = (stall_name != 0) && stall_pct > 0;
+        if (gap_from_file) $readmemb(gap_name, gap_mem);
+        if (stall_from_file) $readmemb(stall_name, stall_mem);
 
         if (DUMP != 0 || $test$plusargs("DUMP")) begin
             $dumpfile(dump_name);
@@ -312,26 +356,20 @@ module cfar_stream_tb;
             note_error("N_WORDS exceeds MAX_WORDS");
             n_words = MAX_WORDS;
         end
-        if (n_words > 0) begin
-            // Known word count: read exactly that range (no short-file warning).
-            $readmemh(stim_name, stim_mem, 0, n_words - 1);
-            $readmemh(expect_name, expect_mem, 0, n_words - 1);
-        end else begin
-            $readmemh(stim_name, stim_mem);
-            $readmemh(expect_name, expect_mem);
-        end
-
-        // Count the words: the first entry $readmemh left unwritten (x) ends each list.
         if (n_words <= 0) begin
+            $display("ERROR: N_WORDS=%0d: give the number of words in the files (+N_WORDS=...)", n_words);
+            note_error("N_WORDS not given");
             n_words = 0;
-            while (n_words < MAX_WORDS && ^stim_mem[n_words] !== 1'bx) n_words = n_words + 1;
+        end else begin
+            $readmemh(stim_name, stim_mem, 0, n_words - 1);
         end
-        n_expect = 0;
-        while (n_expect < MAX_WORDS && ^expect_mem[n_expect] !== 1'bx) n_expect = n_expect + 1;
+        if (n_expect <= 0) n_expect = n_words;
         if (n_expect != n_words) begin
             $display("ERROR: %0d stimulus words but %0d expected words", n_words, n_expect);
             note_error("stimulus and expected word counts differ");
         end
+        if (n_expect > MAX_WORDS) n_expect = MAX_WORDS;
+        if (n_expect > 0) $readmemh(expect_name, expect_mem, 0, n_expect - 1);
         if (n_words > 0 && stim_mem[n_words-1][INPUT_BITS] !== 1'b1) begin
             $display("ERROR: the last stimulus word does not carry the last marker");
             note_error("last stimulus word without last marker");
@@ -402,8 +440,15 @@ module cfar_stream_tb;
                 end
             end
             if (!s_tvalid || s_tready) begin
-                if (gap_pct > 0) gap_state = xorshift32(gap_state);
-                if (next_idx < n_words && (gap_pct == 0 || (gap_state % 100) >= gap_pct)) begin
+                gap_now = 1'b0;
+                if (gap_from_file) begin
+                    gap_now = gap_mem[gap_k];
+                    gap_k   = (gap_k + 1) % PATTERN_LENGTH;
+                end else if (gap_pct > 0) begin
+                    gap_state = xorshift32(gap_state);
+                    gap_now   = (gap_state % 100) < gap_pct;
+                end
+                if (next_idx < n_words && !gap_now) begin
                     stim_word = stim_mem[next_idx];
                     s_tvalid <= 1'b1;
                     s_tdata  <= stim_word[INPUT_BITS-1:0];
@@ -470,14 +515,14 @@ module cfar_stream_tb;
                 // waiting (TVALID high, TREADY low) is made ready, after the stall draw; after a transfer
                 // TREADY falls until the next word is seen.
                 if (m_tvalid === 1'b1 && !m_tready) begin
-                    if (stall_pct > 0) stall_state = xorshift32(stall_state);
-                    m_tready <= (stall_pct == 0 || (stall_state % 100) >= stall_pct);
+                    draw_stall;
+                    m_tready <= !stall_now;
                 end else begin
                     m_tready <= 1'b0;
                 end
             end else if (stall_pct > 0) begin
-                stall_state = xorshift32(stall_state);
-                m_tready <= ((stall_state % 100) >= stall_pct);
+                draw_stall;
+                m_tready <= !stall_now;
             end
 
             // Deadlock watchdog of the waiting sink: no word offered at the output and no input transfer.
