@@ -40,7 +40,6 @@ from ..errors import SpecError, require
 from ..floatmodel.window2d import box_sums
 from ..map_spec import MapSpec
 from .fixed_arith import apply_overflow, round_shift, scale_product
-from .pipeline_fast import _largest_t0
 from .word_format import FIELDS, PipelineOutput
 
 #: Padded cells per strip of work (the summed-area table of one strip is 8 bytes a cell).
@@ -193,7 +192,7 @@ def map_words(spec: MapSpec, cells: np.ndarray) -> PipelineOutput:
         thr = round_shift(stat, d, spec.rounding)
     else:
         thr = scale_product(stat, a, d, spec.rounding, spec.truncate_partials)
-    if _largest_t0(spec.twin) > (1 << spec.threshold_bits) - 1:
+    if spec.twin.threshold_max > (1 << spec.threshold_bits) - 1:
         thr = apply_overflow(thr, spec.threshold_bits, spec.overflow)
     c = m << spec.threshold_frac_bits if spec.threshold_frac_bits else m
     det = c > thr if spec.compare == ">" else c >= thr
