@@ -145,14 +145,16 @@ def fixed_report(spec: BlockSpec) -> dict:
         width (:meth:`BlockSpec.derived`).
     """
     from refmodel.fixedpoint.exact_pfa import trigger_law
+    from refmodel.map_spec import interior_twin
     from refmodel.study.quant_study import study_config
 
     design_pfa = spec.design_pfa if spec.design_pfa is not None else td.pfa_from_alpha(
         spec.kind, spec.n_ref, spec.alpha, spec.rank)
     float_pfa = td.pfa_from_alpha(spec.kind, spec.n_ref, spec.realised_alpha, spec.rank)
     exact = []
-    for noise in study_config(spec).axes["noise_level_lsb"]:
-        law = trigger_law(spec, noise, pfa_hint=min(design_pfa, 1e-6))
+    interior = interior_twin(spec)  # a map block's interior cells have the false-alarm law of its twin
+    for noise in study_config(interior).axes["noise_level_lsb"]:
+        law = trigger_law(interior, noise, pfa_hint=min(design_pfa, 1e-6))
         pfa = law.pfa()
         exact.append({"noise_lsb": noise, "pfa": pfa, "error_bound": law.pfa_error_bound(),
                       "over_design_pfa": pfa / design_pfa})
