@@ -386,6 +386,8 @@ _PROBE = """
         probe_seen_reg <= m_axis_tvalid === 1'b1 && m_axis_tready !== 1'b1;
     end
 
+    assign m_axis_tlast  = out_word_reg[OUT_BITS-1];
+
 endmodule
 """
 
@@ -393,7 +395,7 @@ endmodule
 @pytest.mark.parametrize("mode", ["bulk", "interactive"])
 def test_waiting_sink_raises_tready_only_for_a_word_it_has_seen(tmp_path, mode):
     # ARM IHI 0051A 2.2.1: the sink may wait for TVALID; this one must never raise TREADY before it.
-    core = _core_copy(tmp_path / "rtl", "\nendmodule\n", _PROBE)
+    core = _core_copy(tmp_path / "rtl", "\n    assign m_axis_tlast  = out_word_reg[OUT_BITS-1];\n\nendmodule\n", _PROBE)
     r = cosim(_spec("so-r2-g1-16bit-halfup-wrap-skip-ge"), rtl=[core], mode=mode, samples=300, stall_percent=40,
               sink="waits-for-valid", folder=tmp_path / "b")
     assert r.passed, f"{r.problems}"
