@@ -19,6 +19,12 @@ whole simulator run, start-up included (what a user waits for); the rates of
 the streaming alone (from the release of reset to the last word, measured
 inside the simulation) are printed too.
 
+Then the OS core (rank 24 of 32 reference cells, otherwise the same spec)
+runs in the pure-Verilog bench on its own vector set of the same length,
+twice, alternating with the CA runs above; the faster run counts, and
+``cosim_verilog_os_over_ca`` is its rate over the CA pure-Verilog rate of the
+same process (target 0.3, issue 12).
+
 Output: JSON lines ``{"metric", "value", "unit", "target", "better"}``.
 """
 
@@ -44,6 +50,10 @@ SPEC = {
     "stream": {"frame_length": 512, "pipeline_stages": 2},
     "vectors": {"seed": 2026, "scenario_frames": 8, "random_frames": 16, "random_length_max": 1024},
 }
+
+
+#: The OS core at R = 16: rank 24 of 2R = 32 (INVENTED SCENARIO, benchmark data).
+OS_SPEC = {**SPEC, "detector": {**SPEC["detector"], "kind": "os", "rank": 24, "alpha": 5.0}}
 
 
 def emit(metric: str, value: float, unit: str, target: float | None, better: str) -> None:
@@ -77,6 +87,20 @@ def main() -> int:
              None, "higher")
         emit("cosim_bulk_over_verilog", bulk / verilog, "ratio", 0.8, "higher")
         emit("cosim_interactive_over_verilog", inter / verilog, "ratio", 0.25, "higher")
+        os_folder = work / "bench-os"
+        write_testbench(spec_from_dict(OS_SPEC), os_folder, samples=SAMPLES, gap_percent=20, stall_percent=30)
+        os_runs, ca_runs = [], [best["verilog"]]
+        for _ in range(2):
+            for target, folder_ in ((os_runs, os_folder), (ca_runs, folder)):
+                r = run_folder(folder_, "verilog", samples=SAMPLES)
+                if not r.passed:
+                    print(f"verilog run failed: {r.problems}", file=sys.stderr)
+                    return 1
+                target.append(r)
+        os_rate = max(r.samples_per_second for r in os_runs)
+        ca_rate = max(r.samples_per_second for r in ca_runs)
+        emit("cosim_verilog_os_samples_per_s", os_rate, "samples/s", None, "higher")
+        emit("cosim_verilog_os_over_ca", os_rate / ca_rate, "ratio", 0.3, "higher")
         return 0
     finally:
         shutil.rmtree(work, ignore_errors=True)
