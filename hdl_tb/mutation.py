@@ -188,8 +188,8 @@ MUTANTS: tuple[Mutant, ...] = (
     Mutant("os_removes_the_cell_above",
            "bit-true 3: OS sorts the 2R reference cells with multiplicity (the mutant's array removes the cell "
            "after the run of cells equal to the leaving one, so a wrong cell stays)",
-           "if (a[k*CELL_BITS +: CELL_BITS] < leave) lt_leave",
-           "if (a[k*CELL_BITS +: CELL_BITS] <= leave) lt_leave"),
+           "if (here < leave) lt_leave",
+           "if (here <= leave) lt_leave"),
     Mutant("os_insert_ignores_the_removed_cell",
            "bit-true 3: OS sorts the current reference cells (the mutant places the entering cell as if the "
            "leaving cell were still in the array)",

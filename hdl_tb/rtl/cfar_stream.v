@@ -720,14 +720,16 @@ module cfar_stream_rank_side #(
         reg   [VB-1:0]        b;
         reg   [VB-1:0]        before_q;
         reg   [VB-1:0]        upto_q;
+        reg   [CELL_BITS-1:0] here;
         integer               k;
         begin
             // All bits of cell k set when cell k < leave (cells 0 .. p-1) / < enter.
             lt_leave = {VB{1'b0}};
             lt_enter = {VB{1'b0}};
             for (k = 0; k < CELLS; k = k + 1) begin
-                if (a[k*CELL_BITS +: CELL_BITS] < leave) lt_leave[k*CELL_BITS +: CELL_BITS] = {CELL_BITS{1'b1}};
-                if (a[k*CELL_BITS +: CELL_BITS] < enter) lt_enter[k*CELL_BITS +: CELL_BITS] = {CELL_BITS{1'b1}};
+                here = a[k*CELL_BITS +: CELL_BITS];
+                if (here < leave) lt_leave[k*CELL_BITS +: CELL_BITS] = {CELL_BITS{1'b1}};
+                if (here < enter) lt_enter[k*CELL_BITS +: CELL_BITS] = {CELL_BITS{1'b1}};
             end
             // b[j] = a[j] below p, a[j+1] from p on.
             b        = (a & lt_leave) | ((a >> CELL_BITS) & ~lt_leave);
