@@ -29,6 +29,12 @@ Then, on the same vector set and settings:
 - the bulk cocotb bench on Verilator against Icarus for the whole process,
   a fresh build included (target >= 3), and without the build.
 
+Then the OS core (rank 24 of 32 reference cells, otherwise the same spec)
+runs in the pure-Verilog bench on its own vector set of the same length,
+twice, alternating with the CA runs above; the faster run counts, and
+``cosim_verilog_os_over_ca`` is its rate over the CA pure-Verilog rate of the
+same process (target 0.3, issue 12).
+
 Output: JSON lines ``{"metric", "value", "unit", "target", "better"}``.
 """
 
@@ -59,6 +65,10 @@ SPEC = {
     "stream": {"frame_length": 512, "pipeline_stages": 2},
     "vectors": {"seed": 2026, "scenario_frames": 8, "random_frames": 16, "random_length_max": 1024},
 }
+
+
+#: The OS core at R = 16: rank 24 of 2R = 32 (INVENTED SCENARIO, benchmark data).
+OS_SPEC = {**SPEC, "detector": {**SPEC["detector"], "kind": "os", "rank": 24, "alpha": 5.0}}
 
 
 def emit(metric: str, value: float, unit: str, target: float | None, better: str) -> None:
@@ -94,6 +104,20 @@ def main() -> int:
         emit("cosim_interactive_over_verilog", inter / verilog, "ratio", 0.5, "higher")
         emit("cosim_verilog_patterns_over_draws", _draws_seconds(folder, best["verilog"]) /
              best["verilog"].sim_seconds, "ratio", 1.2, "higher")
+        os_folder = work / "bench-os"
+        write_testbench(spec_from_dict(OS_SPEC), os_folder, samples=SAMPLES, gap_percent=20, stall_percent=30)
+        os_runs, ca_runs = [], [best["verilog"]]
+        for _ in range(2):
+            for target, folder_ in ((os_runs, os_folder), (ca_runs, folder)):
+                r = run_folder(folder_, "verilog", samples=SAMPLES)
+                if not r.passed:
+                    print(f"verilog run failed: {r.problems}", file=sys.stderr)
+                    return 1
+                target.append(r)
+        os_rate = max(r.samples_per_second for r in os_runs)
+        ca_rate = max(r.samples_per_second for r in ca_runs)
+        emit("cosim_verilog_os_samples_per_s", os_rate, "samples/s", None, "higher")
+        emit("cosim_verilog_os_over_ca", os_rate / ca_rate, "ratio", 0.3, "higher")
         try:
             find_simulator("verilator")
         except Exception as exc:  # noqa: BLE001 - a benchmark reports what it cannot measure

@@ -2,8 +2,7 @@
 
 The work is done by :func:`hdl_tb.synthesis.synthesize`. Exit codes: 0 with
 the counts printed, 1 when Yosys fails on the core, 2 for bad input (a bad
-spec, a spec the core cannot build such as ``os`` or ``circular``, Yosys not
-installed).
+spec, Yosys not installed).
 """
 
 from __future__ import annotations
@@ -24,7 +23,7 @@ cell counts: LUTs, flip-flops, DSP blocks, carry cells, shift-register LUTs
 (SRLs), simple gates and the total. Flows: generic (Yosys 'synth': simple
 gates and flip-flops, no LUTs) and xilinx (7-series primitives). A netlist
 with latches is refused. Exit status 0: counts printed; 1: Yosys failed;
-2: bad input (the core has no os kind and no circular policy). With --rtl
+2: bad input (a bad spec, Yosys not installed). With --rtl
 your module is synthesised instead (top module: --top or ports.module of
 SPEC), with the parameters the testbenches give it (the [ports] table:
 core_parameters and [ports.parameters])."""

@@ -1,13 +1,13 @@
 """Verilog parameters of the reference core for a block spec.
 
 The reference core ``hdl_tb/rtl/cfar_stream.v`` implements
-``docs/bit-true.md`` for the CA, GO and SO detectors under the ``skip``,
-``zero-pad`` and ``one-sided`` edge policies. :func:`core_parameters` maps a
-:class:`~refmodel.block_spec.BlockSpec` to the core's parameter values (plain
-ints, ready for ``iverilog -P``, a cocotb runner's ``parameters=`` or Yosys
-``chparam``) and refuses, with a :class:`~refmodel.errors.SpecError`, what the
-core does not implement. The field-by-field description of the core is
-``docs/reference-core.md``.
+``docs/bit-true.md`` for every detector kind (CA, GO, SO, OS) under every
+edge policy (``skip``, ``zero-pad``, ``one-sided``, ``circular``).
+:func:`core_parameters` maps a :class:`~refmodel.block_spec.BlockSpec` to the
+core's parameter values (plain ints, ready for ``iverilog -P``, a cocotb
+runner's ``parameters=`` or Yosys ``chparam``) and refuses, with a
+:class:`~refmodel.errors.SpecError`, what the core cannot be built with. The
+field-by-field description of the core is ``docs/reference-core.md``.
 """
 
 from __future__ import annotations
@@ -16,6 +16,8 @@ from pathlib import Path
 
 from refmodel.block_spec import BlockSpec
 from refmodel.errors import SpecError
+from refmodel.fixedpoint.pipeline_struct import MAX_CIRCULAR_FRAME
+from refmodel.spec_fields import integer
 
 #: Name of the core's top module.
 CORE_TOP = "cfar_stream"
@@ -31,19 +33,38 @@ BENCH_SOURCE = RTL_DIR / "cfar_stream_tb.v"
 #: Fewest register stages the core can be built with (the output register alone).
 MIN_PIPELINE_STAGES = 1
 
-#: Integer codes of the enumerated parameters. Code 3 (os, circular) is passed
-#: only to a user's own core; the reference core stops elaboration on it.
+#: Integer codes of the enumerated parameters.
 KIND_CODES = {"ca": 0, "go": 1, "so": 2, "os": 3}
 EDGE_CODES = {"skip": 0, "zero-pad": 1, "one-sided": 2, "circular": 3}
-#: What the reference core implements.
-REFERENCE_KINDS = ("ca", "go", "so")
-REFERENCE_EDGES = ("skip", "zero-pad", "one-sided")
 ROUNDING_CODES = {"floor": 0, "half-up": 1, "half-even": 2}
 OVERFLOW_CODES = {"saturate": 0, "wrap": 1}
 COMPARE_CODES = {">": 0, ">=": 1}
 
 
-def core_parameters(spec: BlockSpec, *, srst_level: int = 1, reference_core: bool = True) -> dict[str, int]:
+def longest_frame(spec: BlockSpec) -> int:
+    """The longest frame the spec's vector set can hold: the circular frame store depth.
+
+    Parameters
+    ----------
+    spec : BlockSpec
+        A validated block spec (its ``[vectors]`` section sets the random
+        frame lengths).
+
+    Returns
+    -------
+    int
+        The largest of ``stream.frame_length + 1`` and ``2W + 3`` (the
+        directed corner cases of :mod:`vectors.corner_cases`, ``W`` the window
+        length) and ``vectors.random_length_max`` (the random frames).
+    """
+    from vectors.vector_set import vector_settings
+
+    w = spec.window_length
+    return max(spec.frame_length + 1, 2 * w + 3, vector_settings(spec).random_length_max)
+
+
+def core_parameters(spec: BlockSpec, *, srst_level: int = 1, reference_core: bool = True,
+                    max_frame_length: int | None = None) -> dict[str, int]:
     """The ``cfar_stream`` parameter values that realise ``spec``.
 
     Parameters
@@ -54,26 +75,31 @@ def core_parameters(spec: BlockSpec, *, srst_level: int = 1, reference_core: boo
         Level of the core's synchronous reset input that resets it (1 =
         active high). Not part of the block spec; the default is active high.
     reference_core : bool, optional
-        True: refuse what the reference core does not implement. False: the
-        same parameters for a user's own core, ``os`` and ``circular`` included
-        (code 3).
+        True: also check what only the reference core needs
+        (``stream.pipeline_stages`` >= :data:`MIN_PIPELINE_STAGES`). False:
+        the same parameters for a user's own core.
+    max_frame_length : int, optional
+        Depth of the circular frame store (``MAX_FRAME_LENGTH``, used under
+        ``edge = "circular"``): the longest frame the core will see. Default
+        :func:`longest_frame` (every frame of the spec's vector set fits).
 
     Returns
     -------
     dict of str to int
         One entry per core parameter: ``INPUT_BITS``, ``REF_CELLS``,
-        ``GUARD_CELLS``, ``KIND``, ``EDGE``, ``SUM_BITS``, ``ALPHA_INT``,
-        ``DROP_BITS``, ``THRESHOLD_FRAC_BITS``, ``THRESHOLD_BITS``,
-        ``ROUNDING``, ``OVERFLOW``, ``COMPARE_GE``, ``TRUNCATE_PARTIALS``,
-        ``PIPELINE_STAGES``, ``SRST_LEVEL``.
+        ``GUARD_CELLS``, ``KIND``, ``OS_RANK``, ``EDGE``,
+        ``MAX_FRAME_LENGTH``, ``SUM_BITS``, ``ALPHA_INT``, ``DROP_BITS``,
+        ``THRESHOLD_FRAC_BITS``, ``THRESHOLD_BITS``, ``ROUNDING``,
+        ``OVERFLOW``, ``COMPARE_GE``, ``TRUNCATE_PARTIALS``,
+        ``PIPELINE_STAGES``, ``SRST_LEVEL``. ``OS_RANK`` is
+        ``detector.rank`` (1 for the other kinds, where the core ignores it).
 
     Raises
     ------
     SpecError
-        ``detector.kind`` for ``"os"`` and ``detector.edge`` for
-        ``"circular"`` (not implemented by the core),
-        ``stream.pipeline_stages`` below :data:`MIN_PIPELINE_STAGES`, and
-        ``srst_level`` other than 0 or 1.
+        ``stream.pipeline_stages`` below :data:`MIN_PIPELINE_STAGES` (reference
+        core), ``srst_level`` other than 0 or 1, ``max_frame_length`` outside
+        ``2R+2G+1 .. 2**24``.
 
     Notes
     -----
@@ -82,13 +108,10 @@ def core_parameters(spec: BlockSpec, *, srst_level: int = 1, reference_core: boo
     4), both passed as integers. ``ALPHA_INT`` is ``spec.alpha_int``, the
     authoritative integer of the manifest.
     """
-    if reference_core and spec.kind not in REFERENCE_KINDS:
-        raise SpecError("detector.kind", f"got {spec.kind!r}: the reference core has no order-statistic (os) "
-                        "datapath", ", ".join(f'"{k}"' for k in REFERENCE_KINDS))
-    if reference_core and spec.edge not in REFERENCE_EDGES:
-        raise SpecError("detector.edge", f"got {spec.edge!r}: the reference core has no frame store for the "
-                        "circular policy", ", ".join(f'"{k}"' for k in REFERENCE_EDGES))
-    if spec.pipeline_stages < MIN_PIPELINE_STAGES:
+    if max_frame_length is None:
+        max_frame_length = longest_frame(spec) if spec.edge == "circular" else spec.frame_length
+    max_frame_length = integer("max_frame_length", max_frame_length, spec.window_length, MAX_CIRCULAR_FRAME)
+    if reference_core and spec.pipeline_stages < MIN_PIPELINE_STAGES:
         raise SpecError("stream.pipeline_stages", f"got {spec.pipeline_stages}",
                         f"an integer >= {MIN_PIPELINE_STAGES} for the reference core")
     if srst_level not in (0, 1) or isinstance(srst_level, bool):
@@ -98,7 +121,9 @@ def core_parameters(spec: BlockSpec, *, srst_level: int = 1, reference_core: boo
         "REF_CELLS": spec.ref_per_side,
         "GUARD_CELLS": spec.guard_per_side,
         "KIND": KIND_CODES[spec.kind],
+        "OS_RANK": spec.rank if spec.kind == "os" else 1,
         "EDGE": EDGE_CODES[spec.edge],
+        "MAX_FRAME_LENGTH": max_frame_length,
         "SUM_BITS": spec.sum_bits,
         "ALPHA_INT": int(spec.alpha_int),
         "DROP_BITS": spec.drop_bits,
@@ -114,12 +139,16 @@ def core_parameters(spec: BlockSpec, *, srst_level: int = 1, reference_core: boo
 
 
 def core_latency_cycles(spec: BlockSpec) -> int:
-    """Input-to-output latency of the core at full rate: ``R + G + pipeline_stages`` cycles.
+    """Input-to-output latency of the core at full rate, for a frame of ``stream.frame_length``.
+
+    ``R + G + pipeline_stages`` cycles; under ``circular``
+    ``L + 2(R + G) + pipeline_stages`` (the frame is stored whole first,
+    ``docs/bit-true.md`` section 9): :attr:`BlockSpec.latency_cycles`.
 
     Raises
     ------
     SpecError
-        As :func:`core_parameters`, for a spec the core does not implement.
+        As :func:`core_parameters`, for a spec the core cannot be built with.
     """
     core_parameters(spec)
-    return spec.half_window + spec.pipeline_stages
+    return spec.latency_cycles

@@ -97,12 +97,12 @@ class Mutant:
 MUTANTS: tuple[Mutant, ...] = (
     Mutant("leading_sum_wrong_tap",
            "bit-true 2: the leading reference cells are x[n+G+1] .. x[n+H] (the leading sum keeps R+1 cells)",
-           "lead_leave = win_reg[(REF_CELLS-1)*IB +: IB] & {IB{body_reg[REF_CELLS-1]}};",
-           "lead_leave = win_reg[REF_CELLS*IB +: IB] & {IB{body_reg[REF_CELLS]}};"),
+           "lead_leave = win_reg[(REF_CELLS-1)*IB +: IB] & {IB{fill[REF_CELLS-1]}};",
+           "lead_leave = win_reg[REF_CELLS*IB +: IB] & {IB{fill[REF_CELLS]}};"),
     Mutant("lagging_guard_one_short",
            "bit-true 2: G guard cells on each side take no part (the lagging side has G-1 and sums R+1 cells)",
-           "lag_enter  = win_reg[(HALF+GUARD_CELLS)*IB +: IB] & {IB{body_reg[HALF+GUARD_CELLS]}};",
-           "lag_enter  = win_reg[(HALF+GUARD_CELLS-1)*IB +: IB] & {IB{body_reg[HALF+GUARD_CELLS-1]}};"),
+           "lag_enter  = win_reg[(HALF+GUARD_CELLS)*IB +: IB] & {IB{fill[HALF+GUARD_CELLS]}};",
+           "lag_enter  = win_reg[(HALF+GUARD_CELLS-1)*IB +: IB] & {IB{fill[HALF+GUARD_CELLS-1]}};"),
     Mutant("ge_decides_as_gt",
            "bit-true 7: compare \">=\" gives det = (C >= T) (the mutant misses C = T)",
            "((c_cmp << THRESHOLD_FRAC_BITS) >= t)",
@@ -133,8 +133,8 @@ MUTANTS: tuple[Mutant, ...] = (
            "reg  [SUM_BITS-2:0] sum_lead_reg;"),
     Mutant("ca_statistic_loses_carry",
            "bit-true 3: for ca S = S_lag + S_lead is W_S + 1 bits wide (the mutant drops the carry)",
-           "localparam integer STAT_BITS = (KIND == 0) ? SUM_BITS + 1 : SUM_BITS;",
-           "localparam integer STAT_BITS = SUM_BITS;"),
+           "localparam integer STAT_BITS = (KIND == 0) ? SUM_BITS + 1 : (KIND == 3) ? IB : SUM_BITS;",
+           "localparam integer STAT_BITS = (KIND == 0) ? SUM_BITS : (KIND == 3) ? IB : SUM_BITS;"),
     Mutant("last_marker_one_early",
            "bit-true 8: the last marker is set on the frame's last CUT (the mutant sets it one word early)",
            "assign f_side      = {last_reg[HALF], body_reg[2*HALF] & body_reg[0]",
@@ -172,8 +172,8 @@ MUTANTS: tuple[Mutant, ...] = (
     Mutant("input_taken_while_stalled",
            "bit-true 9: input is accepted only while the pipeline moves (the mutant takes a sample while the "
            "output waits, and its word is lost)",
-           "assign s_axis_tready = advance & ~draining & ~rst;",
-           "assign s_axis_tready = ~draining & ~rst;"),
+           "assign s_axis_tready = advance & ~draining & ~replaying & ~rst;",
+           "assign s_axis_tready = ~draining & ~replaying & ~rst;"),
     Mutant("output_word_changes_while_stalled",
            "AXI4-Stream: TDATA stays stable while TVALID is high and TREADY low (the mutant reloads the "
            "output register every cycle)",
@@ -184,6 +184,81 @@ MUTANTS: tuple[Mutant, ...] = (
            "it (the mutant shifts the valid bits on while the sink is not ready)",
            "end else if (advance) begin\n            valid_pipe_reg <=",
            "end else begin\n            valid_pipe_reg <="),
+    # ---- OS: the sorted arrays and the selection of the k-th smallest cell
+    Mutant("os_removes_the_cell_above",
+           "bit-true 3: OS sorts the 2R reference cells with multiplicity (the mutant's array removes the cell "
+           "after the run of cells equal to the leaving one, so a wrong cell stays)",
+           "if (here < leave) lt_leave",
+           "if (here <= leave) lt_leave"),
+    Mutant("os_insert_ignores_the_removed_cell",
+           "bit-true 3: OS sorts the current reference cells (the mutant places the entering cell as if the "
+           "leaving cell were still in the array)",
+           "before_q = (lt_enter & lt_leave) | ((lt_enter >> CELL_BITS) & ~lt_leave);",
+           "before_q = lt_enter;"),
+    Mutant("os_array_not_reset",
+           "bit-true 9: after reset the window holds zeros (the mutant's sorted arrays keep what they held)",
+           "            sorted_reg <= {VB{1'b0}};\n",
+           ""),
+    Mutant("os_lag_array_loses_the_lead_cell",
+           "bit-true 2: the lagging reference cells are x[n-H] .. x[n-G-1] (the mutant's lagging array drops the "
+           "cell leaving the leading side instead of its own)",
+           ".enter_cell(lag_enter), .leave_cell(lag_leave),",
+           ".enter_cell(lag_enter), .leave_cell(lead_leave),"),
+    Mutant("os_split_max_as_min",
+           "bit-true 3: OS takes the k-th smallest of both sides, the least max(lag_i, lead_j) over i + j = k "
+           "(the mutant takes the min of each pair)",
+           "c = (x >= y) ? x : y;",
+           "c = (x <= y) ? x : y;"),
+    Mutant("os_split_all_lagging_missing",
+           "bit-true 3: OS counts every split of the k smallest cells between the sides (the mutant never takes "
+           "all k, or all R, from the lagging side)",
+           "localparam integer OS_SPLIT_HI = (OS_RANK < REF_CELLS) ? OS_RANK : REF_CELLS;",
+           "localparam integer OS_SPLIT_HI = (OS_RANK < REF_CELLS) ? OS_RANK - 1 : REF_CELLS - 1;"),
+    Mutant("os_one_sided_rank_floor",
+           "bit-true 3: one-sided OS takes the ceil(k/2)-th smallest of the complete side (the mutant floor(k/2), "
+           "at least 1)",
+           "localparam integer OS_SIDE_RANK = (OS_RANK + 1) / 2;",
+           "localparam integer OS_SIDE_RANK = (OS_RANK > 1) ? OS_RANK / 2 : 1;"),
+    Mutant("os_split_all_leading_missing",
+           "bit-true 3: OS counts every split of the k smallest cells between the sides (the mutant never takes "
+           "all k, or all R, from the leading side)",
+           "localparam integer OS_SPLIT_LO = (OS_RANK > REF_CELLS) ? OS_RANK - REF_CELLS : 0;",
+           "localparam integer OS_SPLIT_LO = (OS_RANK > REF_CELLS) ? OS_RANK - REF_CELLS + 1 : 1;"),
+    # ---- circular: the frame store and its replay
+    Mutant("circular_replay_starts_at_frame_start",
+           "bit-true 2: under circular the cells before the frame are x[L-H..L-1] (the mutant replays x[0..H-1])",
+           "rd_addr_next = start_replay ? wr_addr_reg + ADDR_ONE - ADDR_HALF",
+           "rd_addr_next = start_replay ? {FRAME_ADDR_BITS{1'b0}}"),
+    Mutant("circular_read_does_not_wrap",
+           "bit-true 2: under circular the cell at index i >= L is x[i mod L] (the mutant reads on past the "
+           "frame's end)",
+           "(rd_addr_reg == last_addr_reg) ? {FRAME_ADDR_BITS{1'b0}}",
+           "(1'b0) ? {FRAME_ADDR_BITS{1'b0}}"),
+    Mutant("circular_wrapped_cells_count_as_zero",
+           "bit-true 2: under circular the wrapped cells hold x[i mod L] (the mutant masks them to 0 like drain "
+           "zeros, i.e. zero-pad)",
+           "wire [WIN-1:0] fill = (CIRC != 0) ? fill_reg : body_reg;",
+           "wire [WIN-1:0] fill = body_reg;"),
+    Mutant("circular_body_one_cell_long",
+           "bit-true 8: one output word per input sample (the mutant also emits a word for the first wrapped "
+           "cell after the frame)",
+           "assign enter_body  = (replay_left_reg <= body_top_reg) & (replay_left_reg > LEFT_HALF);",
+           "assign enter_body  = (replay_left_reg <= body_top_reg) & (replay_left_reg >= LEFT_HALF);"),
+    Mutant("circular_last_marker_one_early",
+           "bit-true 8: the last marker is set on the frame's last CUT (under circular the mutant sets it one "
+           "word early)",
+           "assign enter_last  = (replay_left_reg == LEFT_HALF + LEFT_ONE);",
+           "assign enter_last  = (replay_left_reg == LEFT_HALF + LEFT_ONE + LEFT_ONE);"),
+    Mutant("circular_replay_without_tail",
+           "bit-true 9: the stored frame is fed as x[L-H..L-1], x[0..L-1], x[0..H-1] (the mutant stops after "
+           "x[L-1], so the frame's last H words are formed from the next frame)",
+           "replay_left_reg <= frame_len + LEFT_HALF + LEFT_HALF;",
+           "replay_left_reg <= frame_len + LEFT_HALF;"),
+    Mutant("circular_input_taken_during_replay",
+           "bit-true 9: under circular new input is refused while the stored frame is replayed (the mutant "
+           "overwrites the store)",
+           "assign s_axis_tready = advance & ~draining & ~replaying & ~rst;",
+           "assign s_axis_tready = advance & ~draining & ~rst;"),
     Mutant("valid_waits_for_ready",
            "AXI4-Stream: a source must not wait for TREADY before asserting TVALID (the mutant offers a word only "
            "while TREADY is high; every word still arrives at a sink that raises TREADY on its own, a sink that "
@@ -220,6 +295,29 @@ CHECK_SPECS: dict[str, dict] = {
                      "edge": "zero-pad", "compare": ">"},
         "fixed": {"input_bits": 10, "alpha_frac_bits": 6, "rounding": "half-up", "threshold_frac_bits": 1},
         "stream": {"frame_length": 40, "pipeline_stages": 5},
+    },
+    # OS one-sided with an odd rank k = 3 (ceil(k/2) = 2 differs from floor), 4-bit samples so that
+    # equal cells are common, the statistic register stage.
+    "os-one-sided-k3": {
+        "detector": {"kind": "os", "ref_cells_per_side": 3, "guard_cells_per_side": 1, "rank": 3, "alpha": 2.5,
+                     "edge": "one-sided", "compare": ">"},
+        "fixed": {"input_bits": 4, "alpha_frac_bits": 4, "rounding": "half-up"},
+        "stream": {"frame_length": 40, "pipeline_stages": 4},
+    },
+    # OS under circular with k = 2 of 2R = 6 (splits with all cells from one side), 6-bit samples;
+    # circular frames of several lengths so that a stale store shows.
+    "os-circular-k2": {
+        "detector": {"kind": "os", "ref_cells_per_side": 3, "guard_cells_per_side": 1, "rank": 2, "alpha": 3.5,
+                     "edge": "circular", "compare": ">="},
+        "fixed": {"input_bits": 6, "alpha_frac_bits": 4, "rounding": "floor"},
+        "stream": {"frame_length": 40, "pipeline_stages": 2},
+    },
+    # OS under zero-pad with k = 5 of 6 (the large ranks), one pipeline stage (the arrays' next values).
+    "os-zero-pad-k5": {
+        "detector": {"kind": "os", "ref_cells_per_side": 3, "guard_cells_per_side": 1, "rank": 5, "alpha": 2.0,
+                     "edge": "zero-pad", "compare": ">"},
+        "fixed": {"input_bits": 5, "alpha_frac_bits": 3, "rounding": "half-even"},
+        "stream": {"frame_length": 40, "pipeline_stages": 1},
     },
 }
 

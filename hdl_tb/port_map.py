@@ -91,9 +91,9 @@ DERIVED_QUANTITIES = ("alpha_int", "alpha_bits", "drop_bits", "threshold_bits", 
                       "pipeline_stages", "latency_cycles", "drain_cycles", "mean_shift", "frame_length")
 
 #: Reference-core parameters (passed when ``core_parameters`` is true).
-CORE_PARAMETER_NAMES = ("INPUT_BITS", "REF_CELLS", "GUARD_CELLS", "KIND", "EDGE", "SUM_BITS", "ALPHA_INT",
-                        "DROP_BITS", "THRESHOLD_FRAC_BITS", "THRESHOLD_BITS", "ROUNDING", "OVERFLOW", "COMPARE_GE",
-                        "TRUNCATE_PARTIALS", "PIPELINE_STAGES", "SRST_LEVEL")
+CORE_PARAMETER_NAMES = ("INPUT_BITS", "REF_CELLS", "GUARD_CELLS", "KIND", "OS_RANK", "EDGE", "MAX_FRAME_LENGTH",
+                        "SUM_BITS", "ALPHA_INT", "DROP_BITS", "THRESHOLD_FRAC_BITS", "THRESHOLD_BITS", "ROUNDING",
+                        "OVERFLOW", "COMPARE_GE", "TRUNCATE_PARTIALS", "PIPELINE_STAGES", "SRST_LEVEL")
 
 _KEYS = ("module", "clock", "reset", "reset_active", *SIGNAL_DEFAULTS, "core_parameters", "out_data_bits",
          "out_fields", "parameters")

@@ -19,10 +19,11 @@ backpressure, and compares every output word. Sources beside the checks:
 - Geometric waiting (elementary probability): with a fraction ``p`` of cycles
   without an offered word, a word waits ``1 / (1 - p)`` cycles on average.
 
-The matrix covers CA, GO and SO; power-of-two and other reference-cell
+The matrix covers CA, GO, SO and OS (ranks ``k = 1``, ``k = 2R`` and between,
+``docs/bit-true.md`` section 3); power-of-two and other reference-cell
 counts; floor, half-up and half-even rounding; saturate and wrap (with a
-threshold narrow enough to overflow); the skip, zero-pad and one-sided edge
-policies; 1- to 32-bit samples. Longer runs need ``CFARVEC_LONG=1``.
+threshold narrow enough to overflow); the skip, zero-pad, one-sided and
+circular edge policies, circular on every kind; 1- to 32-bit samples. Longer runs need ``CFARVEC_LONG=1``.
 The block specs are invented scenarios.
 """
 
@@ -86,12 +87,40 @@ MATRIX = {
     "so-r2-g1-16bit-halfup-wrap-skip-ge": (
         dict(kind="so", ref_cells_per_side=2, guard_cells_per_side=1, alpha=4.4, edge="skip", compare=">="),
         dict(input_bits=16, rounding="half-up", overflow="wrap"), dict(pipeline_stages=2), True, 45, 10),
+    # OS: k = 1, k = 2R and ranks between (docs/bit-true.md section 3).
+    "os-r4-g1-k1-8bit-floor-saturate-zeropad": (
+        dict(kind="os", ref_cells_per_side=4, guard_cells_per_side=1, rank=1, alpha=9.0, edge="zero-pad"),
+        dict(input_bits=8, rounding="floor", overflow="saturate", alpha_frac_bits=4), dict(pipeline_stages=1),
+        True, 20, 30),
+    "os-r6-g2-k12-12bit-halfup-onesided-ge": (
+        dict(kind="os", ref_cells_per_side=6, guard_cells_per_side=2, rank=12, alpha=2.4, edge="one-sided",
+             compare=">="),
+        dict(input_bits=12, rounding="half-up", alpha_frac_bits=6), dict(pipeline_stages=3), False, 30, 20),
+    "os-r16-g2-k24-16bit-halfeven-skip": (
+        dict(kind="os", ref_cells_per_side=16, guard_cells_per_side=2, rank=24, alpha=4.7, edge="skip"),
+        dict(input_bits=16, rounding="half-even", alpha_frac_bits=8), dict(pipeline_stages=4), False, 15, 15),
+    # Circular on every kind (docs/bit-true.md sections 2 and 9).
+    "os-r8-g1-k12-14bit-halfeven-wrap-circular": (
+        dict(kind="os", ref_cells_per_side=8, guard_cells_per_side=1, rank=12, alpha=3.0, edge="circular"),
+        dict(input_bits=14, rounding="half-even", overflow="wrap", alpha_frac_bits=8, threshold_frac_bits=2),
+        dict(pipeline_stages=2), True, 20, 30),
+    "ca-r5-g1-16bit-halfup-saturate-circular": (
+        dict(kind="ca", ref_cells_per_side=5, guard_cells_per_side=1, alpha=6.5, edge="circular"),
+        dict(input_bits=16, rounding="half-up", overflow="saturate"), dict(pipeline_stages=2), False, 25, 25),
+    "go-r3-g2-10bit-floor-wrap-circular-ge": (
+        dict(kind="go", ref_cells_per_side=3, guard_cells_per_side=2, alpha=3.9, edge="circular", compare=">="),
+        dict(input_bits=10, rounding="floor", overflow="wrap"), dict(pipeline_stages=5), True, 30, 10),
+    "so-r4-g0-6bit-halfeven-circular": (
+        dict(kind="so", ref_cells_per_side=4, guard_cells_per_side=0, alpha=3.3, edge="circular"),
+        dict(input_bits=6, rounding="half-even", alpha_frac_bits=3, threshold_frac_bits=1),
+        dict(pipeline_stages=1), False, 10, 40),
 }
 
 
 # Matrix entries whose runs use a sink that waits for TVALID (ARM IHI 0051A 2.2.1).
 WAITING_SINK = {"so-r6-g3-16bit-floor-truncated-csd-skip", "ca-r7-g1-32bit-halfeven-wrap-zeropad",
-                "go-r5-g1-8bit-floor-wrap-skip"}
+                "go-r5-g1-8bit-floor-wrap-skip", "os-r6-g2-k12-12bit-halfup-onesided-ge",
+                "go-r3-g2-10bit-floor-wrap-circular-ge"}
 
 
 def _sink(name: str) -> str:
@@ -119,10 +148,15 @@ def _spec(name: str):
 def test_matrix_is_what_the_docstring_says():
     specs = [_spec(n) for n in MATRIX]
     assert len(specs) >= 8
-    assert {s.kind for s in specs} == {"ca", "go", "so"}
+    assert {s.kind for s in specs} == {"ca", "go", "so", "os"}
     assert {s.rounding for s in specs} == {"floor", "half-up", "half-even"}
     assert {s.overflow for s in specs} == {"saturate", "wrap"}
-    assert {s.edge for s in specs} == {"skip", "zero-pad", "one-sided"}
+    assert {s.edge for s in specs} == {"skip", "zero-pad", "one-sided", "circular"}
+    # Circular on every kind; OS with k = 1, k = 2R and a rank between.
+    assert {s.kind for s in specs if s.edge == "circular"} == {"ca", "go", "so", "os"}
+    os_ranks = {(s.rank, s.n_ref) for s in specs if s.kind == "os"}
+    assert any(k == 1 for k, _ in os_ranks) and any(k == n for k, n in os_ranks)
+    assert any(1 < k < n for k, n in os_ranks) and len({n for _, n in os_ranks}) >= 3
     n = {s.n_ref for s in specs}
     assert any(k & (k - 1) == 0 for k in n) and any(k & (k - 1) for k in n)
     assert min(s.input_bits for s in specs) <= 4 and max(s.input_bits for s in specs) >= 24
@@ -210,7 +244,8 @@ USER_RTL = """\
 `timescale 1ns/1ps
 module my_cfar #(
     parameter integer INPUT_BITS = 16, parameter integer REF_CELLS = 16, parameter integer GUARD_CELLS = 2,
-    parameter integer KIND = 0, parameter integer EDGE = 0, parameter integer SUM_BITS = 20,
+    parameter integer KIND = 0, parameter integer OS_RANK = 1, parameter integer EDGE = 0,
+    parameter integer MAX_FRAME_LENGTH = 1024, parameter integer SUM_BITS = 20,
     parameter [63:0] ALPHA_INT = 64'd2212, parameter integer DROP_BITS = 12,
     parameter integer THRESHOLD_FRAC_BITS = 0, parameter integer THRESHOLD_BITS = 21,
     parameter integer ROUNDING = 1, parameter integer OVERFLOW = 0, parameter integer COMPARE_GE = 0,
@@ -239,7 +274,7 @@ module my_cfar #(
     reg  wobble_reg = 1'b0;
     integer sent = 0;
     cfar_stream #(.INPUT_BITS(INPUT_BITS), .REF_CELLS(REF_CELLS), .GUARD_CELLS(GUARD_CELLS), .KIND(KIND),
-        .EDGE(EDGE), .SUM_BITS(SUM_BITS), .ALPHA_INT(ALPHA_INT), .DROP_BITS(DROP_BITS),
+        .OS_RANK(OS_RANK), .EDGE(EDGE), .MAX_FRAME_LENGTH(MAX_FRAME_LENGTH), .SUM_BITS(SUM_BITS), .ALPHA_INT(ALPHA_INT), .DROP_BITS(DROP_BITS),
         .THRESHOLD_FRAC_BITS(THRESHOLD_FRAC_BITS), .THRESHOLD_BITS(THRESHOLD_BITS), .ROUNDING(ROUNDING),
         .OVERFLOW(OVERFLOW), .COMPARE_GE(COMPARE_GE), .TRUNCATE_PARTIALS(TRUNCATE_PARTIALS),
         .PIPELINE_STAGES(PIPELINE_STAGES), .SRST_LEVEL(SRST_LEVEL))
@@ -386,6 +421,8 @@ _PROBE = """
         probe_seen_reg <= m_axis_tvalid === 1'b1 && m_axis_tready !== 1'b1;
     end
 
+    assign m_axis_tlast  = out_word_reg[OUT_BITS-1];
+
 endmodule
 """
 
@@ -393,7 +430,7 @@ endmodule
 @pytest.mark.parametrize("mode", ["bulk", "interactive"])
 def test_waiting_sink_raises_tready_only_for_a_word_it_has_seen(tmp_path, mode):
     # ARM IHI 0051A 2.2.1: the sink may wait for TVALID; this one must never raise TREADY before it.
-    core = _core_copy(tmp_path / "rtl", "\nendmodule\n", _PROBE)
+    core = _core_copy(tmp_path / "rtl", "\n    assign m_axis_tlast  = out_word_reg[OUT_BITS-1];\n\nendmodule\n", _PROBE)
     r = cosim(_spec("so-r2-g1-16bit-halfup-wrap-skip-ge"), rtl=[core], mode=mode, samples=300, stall_percent=40,
               sink="waits-for-valid", folder=tmp_path / "b")
     assert r.passed, f"{r.problems}"
@@ -452,6 +489,14 @@ def test_cli_pass_and_mismatch_exit_codes(tmp_path, user_rtl, capsys):
     assert out.startswith("FAIL") and "first mismatch   word" in out
 
 
+def test_cli_example_os_circular_passes(capsys):
+    # examples/channel_os.toml: OS (rank 12 of 16) under the circular policy, the reference core.
+    example = Path(__file__).resolve().parents[1] / "examples" / "channel_os.toml"
+    assert main(["cosim", str(example), "--samples", "3000"]) == 0
+    out = capsys.readouterr().out
+    assert out.startswith("PASS") and "words compared" in out
+
+
 def _one_line_error(capsys, argv: list[str], field: str) -> str:
     assert main(argv) == 2
     captured = capsys.readouterr()
@@ -500,8 +545,8 @@ def test_cli_bad_spec_and_options(tmp_path, capsys):
     bad.write_text(path.read_text().replace("kind = \"ca\"", "kind = \"median\""))
     _one_line_error(capsys, ["cosim", str(bad)], "detector.kind")
     os_spec = tmp_path / "os.toml"
-    os_spec.write_text("[detector]\nkind = \"os\"\nref_cells_per_side = 4\nrank = 6\nalpha = 5.0\n")
-    _one_line_error(capsys, ["cosim", str(os_spec)], "detector.kind")
+    os_spec.write_text("[detector]\nkind = \"os\"\nref_cells_per_side = 4\nrank = 9\nalpha = 5.0\n")
+    _one_line_error(capsys, ["cosim", str(os_spec)], "detector.rank")
     _one_line_error(capsys, ["cosim", str(path), "--samples", "0"], "--samples")
     _one_line_error(capsys, ["cosim", str(path), "--stalls", "99"], "--stalls")
     _one_line_error(capsys, ["cosim", str(tmp_path / "missing.toml")], "SPEC")

@@ -102,7 +102,23 @@ def test_runs_use_both_kinds_of_sink():
     assert mutation.BenchRun(20, 30, 7).describe() == "gap 20 stall 30 seed 7"
 
 
-def test_script_refuses_a_spec_the_core_cannot_build(capsys):
-    assert mutation.main([str(ROOT / "examples" / "channel_os.toml")]) == 2
+def test_script_refuses_bad_vector_settings(tmp_path, capsys):
+    spec = tmp_path / "bad.toml"
+    text = (ROOT / "examples" / "channel_os.toml").read_text(encoding="utf-8")
+    spec.write_text(text + "\n[vectors]\nrandom_frames = -1\n", encoding="utf-8")
+    assert mutation.main([str(spec)]) == 2
     err = capsys.readouterr().err.strip()
-    assert len(err.splitlines()) == 1 and "detector.kind" in err
+    assert len(err.splitlines()) == 1 and "vectors.random_frames" in err
+
+
+def test_new_logic_has_its_own_mutants_and_check_specs():
+    """OS and circular (docs/bit-true.md sections 2, 3 and 9) each have mutants, and check specs to show them."""
+    names = [m.name for m in mutation.MUTANTS]
+    assert sum(n.startswith("os_") for n in names) >= 6
+    assert sum(n.startswith("circular_") for n in names) >= 6
+    specs = mutation.check_specs()
+    assert {s.kind for s in specs.values()} >= {"ca", "go", "os"}
+    assert {s.edge for s in specs.values()} == {"skip", "zero-pad", "one-sided", "circular"}
+    ranks = {(s.rank, s.n_ref) for s in specs.values() if s.kind == "os"}
+    assert any(k % 2 == 1 for k, _ in ranks)  # ceil(k/2) differs from floor(k/2)
+    assert any(k <= n // 2 for k, n in ranks) and any(k > n // 2 for k, n in ranks)

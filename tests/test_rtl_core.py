@@ -11,7 +11,11 @@ files (IEEE Std 1364-2005, section 17.2.9) and runs
 The bench itself also checks the AXI4-Stream output handshake (ARM IHI 0051A,
 section 2.2.1: once TVALID is high it stays high with TDATA stable until the
 transfer), the drain of ``docs/bit-true.md`` section 9 and, at full rate, the
-latency ``R + G + pipeline_stages``. Some configurations run with a sink that
+latency ``R + G + pipeline_stages`` (under ``circular``, section 9: input
+refused for ``L + 2(R + G)`` cycles after each frame, latency
+``L + 2(R + G) + pipeline_stages``). The configurations cover every kind
+(CA, GO, SO and OS with ``k = 1``, ``k = 2R`` and ranks between) and every
+edge policy. Some configurations run with a sink that
 waits for TVALID before raising TREADY (allowed to a sink by ARM IHI 0051A,
 section 2.2.1), under which a core whose TVALID waits for TREADY deadlocks.
 
@@ -97,13 +101,12 @@ def _write_set(folder: Path, spec, samples, last, words) -> None:
     (folder / "expected.hex").write_text("".join(f"{v:0{out_digits}x}\n" for v in words), encoding="ascii")
 
 
-def _spec(kind, r, g, *, alpha, edge="skip", compare=">", stages=2, **fixed):
-    return spec_from_dict({
-        "detector": {"kind": kind, "ref_cells_per_side": r, "guard_cells_per_side": g, "alpha": alpha,
-                     "edge": edge, "compare": compare},
-        "fixed": fixed,
-        "stream": {"pipeline_stages": stages},
-    })
+def _spec(kind, r, g, *, alpha, edge="skip", compare=">", stages=2, rank=None, **fixed):
+    det = {"kind": kind, "ref_cells_per_side": r, "guard_cells_per_side": g, "alpha": alpha, "edge": edge,
+           "compare": compare}
+    if rank is not None:
+        det["rank"] = rank
+    return spec_from_dict({"detector": det, "fixed": fixed, "stream": {"pipeline_stages": stages}})
 
 
 # id: (spec arguments, bench arguments, samples)
@@ -145,6 +148,41 @@ CONFIGS = {
     "ca-r2-g1-16bit-halfup-wrap-onesided-ge-g2012": (
         dict(kind="ca", r=2, g=1, alpha=4.4, edge="one-sided", compare=">=", input_bits=16, rounding="half-up",
              overflow="wrap", threshold_bits=15), dict(generation="2012"), 1200),
+    # OS (docs/bit-true.md section 3: the k-th smallest of the 2R reference cells; one-sided: the
+    # ceil(k/2)-th of the complete side), k = 1, k = 2R and ranks between, every edge policy.
+    "os-r8-g1-k12-16bit-halfup-skip-gaps-stalls": (
+        dict(kind="os", r=8, g=1, rank=12, alpha=3.0, input_bits=16, rounding="half-up"),
+        dict(gap_percent=20, stall_percent=30), 1500),
+    "os-r4-g1-k1-4bit-floor-zeropad-ge-1stage": (
+        dict(kind="os", r=4, g=1, rank=1, alpha=6.0, edge="zero-pad", compare=">=", stages=1, input_bits=4,
+             rounding="floor", overflow="saturate", alpha_frac_bits=4, threshold_bits=5),
+        dict(gap_percent=15, stall_percent=15), 1200),
+    "os-r4-g2-k8-8bit-halfeven-onesided-3stages": (
+        dict(kind="os", r=4, g=2, rank=8, alpha=2.2, edge="one-sided", stages=3, input_bits=8,
+             rounding="half-even", alpha_frac_bits=3, threshold_frac_bits=1), dict(stall_percent=40, seed=4), 1200),
+    "os-r5-g0-k3-12bit-wrap-onesided-5stages-waiting-sink": (
+        dict(kind="os", r=5, g=0, rank=3, alpha=4.5, edge="one-sided", stages=5, input_bits=12, overflow="wrap",
+             threshold_bits=12), dict(gap_percent=10, stall_percent=20, sink="waits-for-valid"), 1200),
+    "os-r1-g0-k2-4bit-onesided-full-rate": (
+        dict(kind="os", r=1, g=0, rank=2, alpha=2.0, edge="one-sided", input_bits=4), {}, 600),
+    "os-r16-g2-k24-16bit-zeropad-4stages-g2012": (
+        dict(kind="os", r=16, g=2, rank=24, alpha=5.0, edge="zero-pad", stages=4, input_bits=16),
+        dict(gap_percent=20, stall_percent=20, generation="2012"), 1500),
+    # Circular (docs/bit-true.md sections 2 and 9: x[i mod L], the frame stored and replayed) on every kind.
+    "os-r8-g1-k12-14bit-halfeven-wrap-circular": (
+        dict(kind="os", r=8, g=1, rank=12, alpha=3.0, edge="circular", input_bits=14, rounding="half-even",
+             overflow="wrap", alpha_frac_bits=8, threshold_frac_bits=2, threshold_bits=15),
+        dict(gap_percent=20, stall_percent=30), 1500),
+    "os-r3-g1-k6-8bit-circular-1stage-full-rate": (
+        dict(kind="os", r=3, g=1, rank=6, alpha=2.5, edge="circular", stages=1, input_bits=8), {}, 1200),
+    "ca-r4-g1-12bit-circular-full-rate": (
+        dict(kind="ca", r=4, g=1, alpha=5.0, edge="circular", input_bits=12), {}, 1200),
+    "go-r6-g2-16bit-floor-circular-4stages-waiting-sink": (
+        dict(kind="go", r=6, g=2, alpha=4.0, edge="circular", stages=4, input_bits=16, rounding="floor"),
+        dict(gap_percent=25, stall_percent=25, sink="waits-for-valid"), 1200),
+    "so-r2-g0-8bit-truncated-circular-6stages": (
+        dict(kind="so", r=2, g=0, alpha=3.7, edge="circular", stages=6, input_bits=8, truncate_partials=True,
+             alpha_csd_digits=2, rounding="floor", alpha_frac_bits=6), dict(gap_percent=30, stall_percent=10), 1200),
 }
 
 # Configurations whose threshold width is deliberately too narrow: full-scale
@@ -341,6 +379,8 @@ _PROBE = """
         probe_seen_reg <= m_axis_tvalid === 1'b1 && m_axis_tready !== 1'b1;
     end
 
+    assign m_axis_tlast  = out_word_reg[OUT_BITS-1];
+
 endmodule
 """
 
@@ -348,7 +388,8 @@ endmodule
 @pytest.mark.parametrize("stalls", [0, 40])
 def test_waiting_sink_raises_tready_only_for_a_word_it_has_seen(tmp_path, stalls):
     spec = _timing_set(tmp_path)
-    core = _core_copy(tmp_path, "\nendmodule\n", _PROBE, "core_probe.v")
+    core = _core_copy(tmp_path, "\n    assign m_axis_tlast  = out_word_reg[OUT_BITS-1];\n\nendmodule\n", _PROBE,
+                      "core_probe.v")
     waiting = run_bench(spec, tmp_path, gap_percent=20, stall_percent=stalls, build_root=tmp_path / "b",
                         core_sources=[core], sink="waits-for-valid")
     assert waiting.passed, waiting.first_mismatch
@@ -370,8 +411,12 @@ def test_bench_options_are_checked(tmp_path):
 
 @pytest.mark.parametrize("generation", ["2005", "2012"])
 @pytest.mark.parametrize("change, message", [
-    (dict(KIND=3), "os is not supported"),
-    (dict(EDGE=3), "circular is not supported"),
+    (dict(KIND=4), "KIND must be 0 ca 1 go 2 so or 3 os"),
+    (dict(KIND=3, OS_RANK=0), "OS RANK must be 1 to 2 times REF CELLS"),
+    (dict(KIND=3, OS_RANK=33), "OS RANK must be 1 to 2 times REF CELLS"),
+    (dict(EDGE=4), "EDGE must be 0 skip 1 zero pad 2 one sided or 3 circular"),
+    (dict(EDGE=3, MAX_FRAME_LENGTH=36), "MAX FRAME LENGTH below the window length"),
+    (dict(EDGE=3, MAX_FRAME_LENGTH=(1 << 24) + 1), "MAX FRAME LENGTH above 2 to the 24"),
     (dict(TRUNCATE_PARTIALS=1, ROUNDING=1), "TRUNCATE PARTIALS needs ROUNDING 0 floor"),
     (dict(SUM_BITS=19), "SUM BITS below bitlen"),
     (dict(PIPELINE_STAGES=0), "PIPELINE STAGES must be at least 1"),
@@ -385,15 +430,22 @@ def test_illegal_parameters_stop_elaboration(tmp_path, generation, change, messa
     assert message in str(err.value)
 
 
-def test_core_parameters_refuse_what_the_core_lacks():
+def test_core_parameters_build_every_kind_and_edge_policy():
+    """OS carries its rank k (docs/bit-true.md section 3); circular a frame store for the longest frame."""
     os_spec = spec_from_dict({"detector": {"kind": "os", "ref_cells_per_side": 8, "rank": 12, "alpha": 5.0}})
-    with pytest.raises(SpecError) as err:
-        core_parameters(os_spec)
-    assert err.value.field == "detector.kind"
-    circ = _spec("ca", 4, 1, alpha=3.0, edge="circular")
-    with pytest.raises(SpecError) as err:
-        core_parameters(circ)
-    assert err.value.field == "detector.edge"
+    p = core_parameters(os_spec)
+    assert p["KIND"] == 3 and p["OS_RANK"] == 12 and p["EDGE"] == 0
+    circ = spec_from_dict({"detector": {"kind": "ca", "ref_cells_per_side": 4, "alpha": 3.0, "edge": "circular"},
+                           "stream": {"frame_length": 100}, "vectors": {"random_length_max": 300}})
+    p = core_parameters(circ)
+    assert p["EDGE"] == 3 and p["OS_RANK"] == 1
+    # The vector set's longest frames: random frames up to random_length_max, a corner case of L + 1.
+    assert p["MAX_FRAME_LENGTH"] == 300
+    assert core_parameters(circ, max_frame_length=120)["MAX_FRAME_LENGTH"] == 120
+    for bad in (8, (1 << 24) + 1, 99.5):  # below the window 2R+2G+1 = 9, above 2^24 (bit-true.md 1), not an int
+        with pytest.raises(SpecError) as err:
+            core_parameters(circ, max_frame_length=bad)
+        assert err.value.field == "max_frame_length"
     with pytest.raises(SpecError) as err:
         core_parameters(_spec("ca", 4, 1, alpha=3.0), srst_level=2)
     assert err.value.field == "srst_level"
@@ -406,7 +458,8 @@ def test_core_parameters_carry_the_spec_values():
     p = core_parameters(spec)
     assert all(type(v) is int for v in p.values())
     assert p == {
-        "INPUT_BITS": 12, "REF_CELLS": 8, "GUARD_CELLS": 1, "KIND": 1, "EDGE": 2,
+        "INPUT_BITS": 12, "REF_CELLS": 8, "GUARD_CELLS": 1, "KIND": 1, "OS_RANK": 1, "EDGE": 2,
+        "MAX_FRAME_LENGTH": 256,
         "SUM_BITS": (8 * 4095).bit_length(), "ALPHA_INT": spec.alpha_int, "DROP_BITS": spec.drop_bits,
         "THRESHOLD_FRAC_BITS": 0, "THRESHOLD_BITS": 14, "ROUNDING": 2, "OVERFLOW": 1, "COMPARE_GE": 1,
         "TRUNCATE_PARTIALS": 0, "PIPELINE_STAGES": 3, "SRST_LEVEL": 1,
@@ -437,17 +490,19 @@ def test_hex_word_count_follows_readmem_text_rules(tmp_path):
 @pytest.mark.parametrize("seed", range(40))
 def test_long_random_configurations(tmp_path, seed):
     rng = np.random.default_rng(1000 + seed)
-    kind = str(rng.choice(["ca", "go", "so"]))
+    kind = str(rng.choice(["ca", "go", "so", "os"]))
     r, g = int(rng.integers(1, 33)), int(rng.integers(0, 5))
+    rank = int(rng.integers(1, 2 * r + 1)) if kind == "os" else None
     trunc = bool(rng.random() < 0.25)
     fixed = dict(input_bits=int(rng.choice([1, 4, 8, 12, 16, 24])), alpha_frac_bits=int(rng.integers(6, 16)),
                  truncate_partials=trunc, alpha_csd_digits=int(rng.integers(0, 4)),
                  rounding="floor" if trunc else str(rng.choice(["floor", "half-up", "half-even"])),
                  overflow=str(rng.choice(["saturate", "wrap"])))
-    div = 2 * r if kind == "ca" else r
+    div = {"ca": 2 * r, "go": r, "so": r}.get(kind, 3)
     fixed["mean_by_shift"] = bool(div & (div - 1) == 0 and rng.random() < 0.5)
-    common = dict(alpha=float(rng.uniform(1.0, 30.0)), edge=str(rng.choice(["skip", "zero-pad", "one-sided"])),
-                  compare=str(rng.choice([">", ">="])), stages=int(rng.integers(1, 9)))
+    common = dict(alpha=float(rng.uniform(1.0, 30.0)),
+                  edge=str(rng.choice(["skip", "zero-pad", "one-sided", "circular"])),
+                  compare=str(rng.choice([">", ">="])), stages=int(rng.integers(1, 9)), rank=rank)
     probe = _spec(kind, r, g, threshold_bits=1, **common, **fixed)
     f_t = int(rng.integers(0, probe.product_frac_bits + 1))
     probe = _spec(kind, r, g, threshold_bits=1, threshold_frac_bits=f_t, **common, **fixed)

@@ -132,8 +132,9 @@ def test_latches_are_detected(tmp_path):
 
 
 def test_illegal_parameters_fail_synthesis_readably(default_spec):
-    params = {**core_parameters(default_spec), "KIND": 3}
-    with pytest.raises(SynthesisError, match="illegal parameter combination for cfar_stream: KIND 3 os is not"):
+    params = {**core_parameters(default_spec), "KIND": 3, "OS_RANK": 0}
+    with pytest.raises(SynthesisError,
+                       match="illegal parameter combination for cfar_stream: OS RANK must be 1 to 2 times REF CELLS"):
         synthesize(params, "generic")
 
 

@@ -215,12 +215,14 @@ def test_bad_options_write_nothing(tmp_path, kwargs, field):
     assert list(tmp_path.iterdir()) == []
 
 
-def test_reference_core_refuses_what_it_lacks(tmp_path):
-    spec = spec_from_dict({"detector": {"kind": "os", "ref_cells_per_side": 4, "rank": 6, "alpha": 5.0}})
-    with pytest.raises(SpecError) as err:
-        write_testbench(spec, tmp_path / "b", check_ports=False)
-    assert err.value.field == "detector.kind"
-    assert list(tmp_path.iterdir()) == []
+def test_reference_core_bench_for_os_and_circular(tmp_path):
+    # The reference core builds every kind and edge policy; the bench passes the OS rank and the frame store.
+    spec = spec_from_dict({"detector": {"kind": "os", "ref_cells_per_side": 4, "rank": 6, "alpha": 5.0,
+                                        "edge": "circular"}})
+    folder = write_testbench(spec, tmp_path / "b", check_ports=False).path
+    params = json.loads((folder / "bench_config.json").read_text())["modes"]["verilog"]["parameters"]
+    assert params["KIND"] == 3 and params["OS_RANK"] == 6 and params["EDGE"] == 3
+    assert params["MAX_FRAME_LENGTH"] >= spec.frame_length
 
 
 @pytest.mark.parametrize("name", ["my core.v", "$(shell true).v", "core;rm.sv", "-x.v"])

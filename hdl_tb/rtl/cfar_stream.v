@@ -11,13 +11,16 @@
 `else
 `define CFAR_STREAM_STOP(name) name u_stop ();
 `endif
-// cfar_stream: streaming one-dimensional CFAR detector (CA, GO, SO), the
+// cfar_stream: streaming one-dimensional CFAR detector (CA, GO, SO, OS), the
 // reference core of cfarvec. It reproduces docs/bit-true.md word for word:
-// running side sums modulo 2^SUM_BITS, the noise statistic S, the exact
-// product S*A (or the truncated shift-and-add of A's NAF digits), rounding,
-// saturate/wrap to THRESHOLD_BITS, the `>` / `>=` decision, the skip,
-// zero-pad and one-sided edge policies, the frame drain of R+G zeros after
-// every last marker, and AXI4-Stream style valid/ready ports on both sides.
+// running side sums modulo 2^SUM_BITS (CA, GO, SO) or two sorted arrays of
+// the reference cells (OS, module cfar_stream_rank_side below), the noise
+// statistic S, the exact product S*A (or the truncated shift-and-add of A's
+// NAF digits), rounding, saturate/wrap to THRESHOLD_BITS, the `>` / `>=`
+// decision, the skip, zero-pad, one-sided and circular edge policies, the
+// frame drain of R+G zeros after every last marker (circular: a frame store
+// replayed through the window), and AXI4-Stream style valid/ready ports on
+// both sides.
 //
 // Output word (m_axis_tdata), LSB first: CUT [INPUT_BITS-1:0], threshold T
 // [INPUT_BITS+THRESHOLD_BITS-1:INPUT_BITS], det, window-valid, last marker
@@ -25,7 +28,8 @@
 //
 // Latency: the word of CUT n is formed when cell n+R+G enters the window and
 // leaves PIPELINE_STAGES register stages later (R+G+PIPELINE_STAGES cycles
-// at full rate). Register placement by PIPELINE_STAGES:
+// at full rate; circular: L+2(R+G)+PIPELINE_STAGES cycles for a frame of L
+// samples, see docs/reference-core.md). Register placement by PIPELINE_STAGES:
 //   1: output register only (the whole datapath is combinational from the
 //      input port and the window registers),
 //   2: + the window/sum registers feed the datapath,
@@ -46,10 +50,15 @@ module cfar_stream #(
     parameter integer REF_CELLS = 16,
     // Guard cells per side G, >= 0.
     parameter integer GUARD_CELLS = 2,
-    // Detector kind: 0 = CA (sum of both sides), 1 = GO (greater side), 2 = SO (smaller side); OS is not supported.
+    // Detector kind: 0 = CA (sum of both sides), 1 = GO (greater side), 2 = SO (smaller side),
+    // 3 = OS (the OS_RANK-th smallest of the 2R reference cells).
     parameter integer KIND = 0,
-    // Edge policy: 0 = skip, 1 = zero-pad, 2 = one-sided; circular is not supported.
+    // OS rank k, 1..2R (used only when KIND = 3).
+    parameter integer OS_RANK = 1,
+    // Edge policy: 0 = skip, 1 = zero-pad, 2 = one-sided, 3 = circular.
     parameter integer EDGE = 0,
+    // Circular frame store depth: the longest frame in samples, 2R+2G+1 .. 2^24 (used only when EDGE = 3).
+    parameter integer MAX_FRAME_LENGTH = 1024,
     // Width W_S of each side's running-sum register, >= bitlen(R * (2^INPUT_BITS - 1)).
     parameter integer SUM_BITS = 20,
     // The constant A (unsigned integer >= 1, F_A + s fraction bits).
@@ -100,8 +109,19 @@ module cfar_stream #(
     // Largest value of one side's sum, R * (2^W_in - 1), and the bits it needs.
     localparam [63:0] SIDE_MAX = REF_CELLS * ((64'd1 << INPUT_BITS) - 64'd1);
     localparam integer SIDE_BITS = $clog2(SIDE_MAX + 64'd1);
-    // Width of the statistic S (CA: W_S + 1, GO/SO: W_S).
-    localparam integer STAT_BITS = (KIND == 0) ? SUM_BITS + 1 : SUM_BITS;
+    // Width of the statistic S (CA: W_S + 1, GO/SO: W_S, OS: W_in).
+    localparam integer STAT_BITS = (KIND == 0) ? SUM_BITS + 1 : (KIND == 3) ? IB : SUM_BITS;
+    // OS: the rank used on one side alone under the one-sided policy, ceil(k/2).
+    localparam integer OS_SIDE_RANK = (OS_RANK + 1) / 2;
+    // OS: the splits i + j = k of the rank between the sides, i from max(0, k-R) to min(k, R).
+    localparam integer OS_SPLIT_LO = (OS_RANK > REF_CELLS) ? OS_RANK - REF_CELLS : 0;
+    localparam integer OS_SPLIT_HI = (OS_RANK < REF_CELLS) ? OS_RANK : REF_CELLS;
+    // 1 = the circular policy: a frame store replayed through the window instead of the drain.
+    localparam integer CIRC = (EDGE == 3) ? 1 : 0;
+    // Longest frame the circular store takes, and the widths of its address and replay counter.
+    localparam [63:0] FRAME_CAP = (1 << 24);
+    localparam integer FRAME_ADDR_BITS = (MAX_FRAME_LENGTH > 2) ? $clog2(MAX_FRAME_LENGTH) : 1;
+    localparam integer REPLAY_BITS = $clog2(MAX_FRAME_LENGTH + 2 * HALF + 1);
     // Width of A.
     localparam integer ALPHA_BITS = $clog2(ALPHA_INT + 64'd1);
     // Width of the multiplier result register (one spare bit: the truncated
@@ -147,15 +167,20 @@ module cfar_stream #(
     // docs/reference-core.md "Parameter checks").
     // ------------------------------------------------------------------
     generate
-        if (KIND == 3) begin : g_err_kind_os
-            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__KIND_3_os_is_not_supported_by_this_core)
-        end else if (KIND < 0 || KIND > 3) begin : g_err_kind
-            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__KIND_must_be_0_ca_1_go_or_2_so)
+        if (KIND < 0 || KIND > 3) begin : g_err_kind
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__KIND_must_be_0_ca_1_go_2_so_or_3_os)
         end
-        if (EDGE == 3) begin : g_err_edge_circular
-            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__EDGE_3_circular_is_not_supported_by_this_core)
-        end else if (EDGE < 0 || EDGE > 3) begin : g_err_edge
-            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__EDGE_must_be_0_skip_1_zero_pad_or_2_one_sided)
+        if (KIND == 3 && (OS_RANK < 1 || OS_RANK > 2 * REF_CELLS)) begin : g_err_os_rank
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__OS_RANK_must_be_1_to_2_times_REF_CELLS)
+        end
+        if (EDGE < 0 || EDGE > 3) begin : g_err_edge
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__EDGE_must_be_0_skip_1_zero_pad_2_one_sided_or_3_circular)
+        end
+        if (EDGE == 3 && MAX_FRAME_LENGTH < WIN) begin : g_err_max_frame_short
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__MAX_FRAME_LENGTH_below_the_window_length_2R_2G_1)
+        end
+        if (EDGE == 3 && MAX_FRAME_LENGTH > FRAME_CAP) begin : g_err_max_frame_long
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__MAX_FRAME_LENGTH_above_2_to_the_24)
         end
         if (INPUT_BITS < 1 || INPUT_BITS > 32) begin : g_err_input_bits
             `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__INPUT_BITS_must_be_1_to_32)
@@ -219,16 +244,19 @@ module cfar_stream #(
     // The whole pipeline moves unless a word waits at the output.
     wire advance   = ~out_valid | m_axis_tready;
     wire draining  = (drain_cnt_reg != {DRAIN_BITS{1'b0}});
-    assign s_axis_tready = advance & ~draining & ~rst;
+    // Circular: the stored frame is being fed through the window (no input meanwhile).
+    wire replaying;
+    assign s_axis_tready = advance & ~draining & ~replaying & ~rst;
     wire accept    = s_axis_tvalid & s_axis_tready;
-    // A step shifts one cell into the window: an accepted sample or a drain zero.
-    wire step      = accept | (advance & draining);
+    // A step shifts one cell into the window: an accepted sample or a drain
+    // zero, or under the circular policy a cell of the stored frame.
+    wire step      = (CIRC != 0) ? (advance & replaying) : (accept | (advance & draining));
 
     localparam [DRAIN_BITS-1:0] DRAIN_LOAD = HALF;
     localparam [DRAIN_BITS-1:0] DRAIN_ONE  = 1;
-    assign drain_cnt_next = (accept & s_axis_tlast) ? DRAIN_LOAD
-                          : (step & draining)       ? drain_cnt_reg - DRAIN_ONE
-                          :                           drain_cnt_reg;
+    assign drain_cnt_next = (accept & s_axis_tlast & (CIRC == 0)) ? DRAIN_LOAD
+                          : (step & draining)                   ? drain_cnt_reg - DRAIN_ONE
+                          :                                       drain_cnt_reg;
 
     always @(posedge clk) begin
         if (rst) begin
@@ -238,27 +266,114 @@ module cfar_stream #(
         end
     end
 
+    // The cell entering at a step: its value and its tags (body: a frame
+    // sample at its own place; last: the frame's last sample; fill: the cell
+    // holds data, a frame sample or under circular a wrapped copy, rather
+    // than a reset or drain zero).
+    wire [IB-1:0] enter_value;
+    wire          enter_body;
+    wire          enter_last;
+    wire          enter_fill;
+
+    // ------------------------------------------------------------------
+    // Circular policy: frame store and replay (docs/bit-true.md section 9).
+    // Samples are written to frame_mem as they are accepted; after the last
+    // marker the frame is fed through the window as x[L-H..L-1], x[0..L-1],
+    // x[0..H-1], i.e. L + 2H consecutive addresses modulo L starting at L-H,
+    // one per step. Only the middle run is `body`. Input is refused meanwhile.
+    // ------------------------------------------------------------------
+    generate
+        if (CIRC != 0) begin : g_circular
+            reg [IB-1:0]              frame_mem [0:MAX_FRAME_LENGTH-1];
+            reg [FRAME_ADDR_BITS-1:0] wr_addr_reg;      // next write address = samples stored so far
+            reg [FRAME_ADDR_BITS-1:0] last_addr_reg;    // L - 1 of the frame being replayed
+            reg [FRAME_ADDR_BITS-1:0] rd_addr_reg;      // address of the cell in rd_data_reg
+            reg [IB-1:0]              rd_data_reg;      // the cell entering at the next replay step
+            reg [REPLAY_BITS-1:0]     replay_left_reg;  // replay steps still to go, L + 2H down to 0
+            reg [REPLAY_BITS-1:0]     body_top_reg;     // L + H: replay_left_reg at the first body cell
+
+            localparam [FRAME_ADDR_BITS-1:0] ADDR_ONE  = 1;
+            localparam [FRAME_ADDR_BITS-1:0] ADDR_HALF = HALF;
+            localparam [REPLAY_BITS-1:0]     LEFT_ONE  = 1;
+            localparam [REPLAY_BITS-1:0]     LEFT_HALF = HALF;
+
+            wire start_replay = accept & s_axis_tlast;
+            wire [FRAME_ADDR_BITS-1:0] rd_addr_step = (rd_addr_reg == last_addr_reg) ? {FRAME_ADDR_BITS{1'b0}}
+                                                                                      : rd_addr_reg + ADDR_ONE;
+            // x[L-H] first: L = wr_addr_reg + 1 at the last sample, and L >= 2H+1.
+            wire [FRAME_ADDR_BITS-1:0] rd_addr_next = start_replay ? wr_addr_reg + ADDR_ONE - ADDR_HALF
+                                                                   : rd_addr_step;
+            wire [REPLAY_BITS-1:0]     frame_len    = {{(REPLAY_BITS-FRAME_ADDR_BITS){1'b0}}, wr_addr_reg} + LEFT_ONE;
+
+            assign replaying   = (replay_left_reg != {REPLAY_BITS{1'b0}});
+            assign enter_value = rd_data_reg;
+            assign enter_body  = (replay_left_reg <= body_top_reg) & (replay_left_reg > LEFT_HALF);
+            assign enter_last  = (replay_left_reg == LEFT_HALF + LEFT_ONE);
+            assign enter_fill  = 1'b1;
+
+            // The store (no reset: a frame is written before it is read).
+            always @(posedge clk) begin
+                if (accept) begin
+                    frame_mem[wr_addr_reg] <= s_axis_tdata;
+                end
+                if (start_replay | step) begin
+                    rd_data_reg <= frame_mem[rd_addr_next];
+                    rd_addr_reg <= rd_addr_next;
+                end
+                if (start_replay) begin
+                    last_addr_reg <= wr_addr_reg;
+                    body_top_reg  <= frame_len + LEFT_HALF;
+                end
+            end
+
+            always @(posedge clk) begin
+                if (rst) begin
+                    wr_addr_reg     <= {FRAME_ADDR_BITS{1'b0}};
+                    replay_left_reg <= {REPLAY_BITS{1'b0}};
+                end else begin
+                    if (accept) begin
+                        wr_addr_reg <= s_axis_tlast ? {FRAME_ADDR_BITS{1'b0}} : wr_addr_reg + ADDR_ONE;
+                    end
+                    if (start_replay) begin
+                        replay_left_reg <= frame_len + LEFT_HALF + LEFT_HALF;
+                    end else if (step) begin
+                        replay_left_reg <= replay_left_reg - LEFT_ONE;
+                    end
+                end
+            end
+        end else begin : g_stream
+            assign replaying   = 1'b0;
+            // A step that is not a drain step is an accepted sample.
+            assign enter_value = draining ? {IB{1'b0}} : s_axis_tdata;
+            assign enter_body  = accept;
+            assign enter_last  = accept & s_axis_tlast;
+            assign enter_fill  = accept;
+        end
+    endgenerate
+
     // ------------------------------------------------------------------
     // Window: packed shift register, newest cell at position 0 (LSBs), the
     // CUT at position HALF, the oldest at 2*HALF. Each cell has a `body` tag
-    // (a frame sample, not a reset or drain zero) and, up to the CUT, a
-    // `last` tag. Cell values are not reset: every tap is masked by its body
-    // tag, so a reset or drain cell counts as 0 exactly as the contract says.
+    // (a frame sample at its own place, not a reset or drain zero or a
+    // wrapped copy), a `fill` tag under circular (the cell holds data) and,
+    // up to the CUT, a `last` tag. Cell values are not reset: every tap is
+    // masked by its fill tag, so a reset or drain cell counts as 0 exactly
+    // as the contract says.
     // ------------------------------------------------------------------
     reg  [WIN*IB-1:0]   win_reg;
     reg  [WIN-1:0]      body_reg;
+    reg  [WIN-1:0]      fill_reg;
     reg  [HALF:0]       last_reg;
     reg  [SUM_BITS-1:0] sum_lead_reg;
     reg  [SUM_BITS-1:0] sum_lag_reg;
 
-    // The cell entering at a step: the accepted sample, or a drain zero (a
-    // step that is not a drain step is an accepted sample).
-    wire [IB-1:0] enter_value = draining ? {IB{1'b0}} : s_axis_tdata;
+    // Without the circular policy a cell holds data exactly when it is a frame sample.
+    wire [WIN-1:0] fill = (CIRC != 0) ? fill_reg : body_reg;
 
-    // Running-sum taps: the cells about to cross a region boundary.
-    wire [IB-1:0] lead_leave = win_reg[(REF_CELLS-1)*IB +: IB] & {IB{body_reg[REF_CELLS-1]}};
-    wire [IB-1:0] lag_enter  = win_reg[(HALF+GUARD_CELLS)*IB +: IB] & {IB{body_reg[HALF+GUARD_CELLS]}};
-    wire [IB-1:0] lag_leave  = win_reg[(WIN-1)*IB +: IB] & {IB{body_reg[WIN-1]}};
+    // Reference-cell taps: the cells about to cross a region boundary.
+    wire [IB-1:0] lead_leave = win_reg[(REF_CELLS-1)*IB +: IB] & {IB{fill[REF_CELLS-1]}};
+    wire [IB-1:0] lag_enter  = win_reg[(HALF+GUARD_CELLS)*IB +: IB] & {IB{fill[HALF+GUARD_CELLS]}};
+    wire [IB-1:0] lag_leave  = win_reg[(WIN-1)*IB +: IB] & {IB{fill[WIN-1]}};
 
     // The shift and the sums are written in the clocked blocks so a
     // simulator evaluates them once per step, not once per input event.
@@ -271,12 +386,14 @@ module cfar_stream #(
     always @(posedge clk) begin
         if (rst) begin
             body_reg     <= {WIN{1'b0}};
+            fill_reg     <= {WIN{1'b0}};
             last_reg     <= {(HALF+1){1'b0}};
             sum_lead_reg <= {SUM_BITS{1'b0}};
             sum_lag_reg  <= {SUM_BITS{1'b0}};
         end else if (step) begin
-            body_reg     <= {body_reg[WIN-2:0], accept};
-            last_reg     <= {last_reg[HALF-1:0], accept & s_axis_tlast};
+            body_reg     <= {body_reg[WIN-2:0], enter_body};
+            fill_reg     <= {fill_reg[WIN-2:0], enter_fill};
+            last_reg     <= {last_reg[HALF-1:0], enter_last};
             // Modulo 2^SUM_BITS (the expression has the register's width), docs/bit-true.md section 3.
             sum_lead_reg <= sum_lead_reg + enter_value - lead_leave;
             sum_lag_reg  <= sum_lag_reg + lag_enter - lag_leave;
@@ -284,13 +401,82 @@ module cfar_stream #(
     end
 
     // ------------------------------------------------------------------
+    // OS: each side's R reference cells kept sorted (cfar_stream_rank_side:
+    // one cell removed and one inserted per step), then the k-th smallest of
+    // both sides from the two sorted arrays: the minimum over the splits
+    // i + j = k of max(lag_i, lead_j), lag_i the i-th smallest lagging cell
+    // (lag_0 = lead_0 = -infinity). The one-sided policy takes the
+    // ceil(k/2)-th smallest of the complete side straight from its array.
+    // ------------------------------------------------------------------
+    // Both sorted arrays as the forming step sees them, and each side's ceil(k/2)-th smallest cell.
+    wire [REF_CELLS*IB-1:0] lag_cells;
+    wire [REF_CELLS*IB-1:0] lead_cells;
+    wire [IB-1:0]           os_lag_side;
+    wire [IB-1:0]           os_lead_side;
+
+    generate
+        if (KIND == 3) begin : g_os
+            wire [REF_CELLS*IB-1:0] lag_sorted;
+            wire [REF_CELLS*IB-1:0] lag_sorted_next;
+            wire [REF_CELLS*IB-1:0] lead_sorted;
+            wire [REF_CELLS*IB-1:0] lead_sorted_next;
+
+            cfar_stream_rank_side #(.CELL_BITS(IB), .CELLS(REF_CELLS), .NEXT_OUT(PIPELINE_STAGES == 1)) u_lead (
+                .clk(clk), .rst(rst), .step(step), .enter_cell(enter_value), .leave_cell(lead_leave),
+                .sorted(lead_sorted), .sorted_next(lead_sorted_next));
+            cfar_stream_rank_side #(.CELL_BITS(IB), .CELLS(REF_CELLS), .NEXT_OUT(PIPELINE_STAGES == 1)) u_lag (
+                .clk(clk), .rst(rst), .step(step), .enter_cell(lag_enter), .leave_cell(lag_leave),
+                .sorted(lag_sorted), .sorted_next(lag_sorted_next));
+
+            // With one pipeline stage the word is formed from the arrays after this step.
+            assign lag_cells    = (PIPELINE_STAGES == 1) ? lag_sorted_next : lag_sorted;
+            assign lead_cells   = (PIPELINE_STAGES == 1) ? lead_sorted_next : lead_sorted;
+            assign os_lag_side  = lag_cells[(OS_SIDE_RANK-1)*IB +: IB];
+            assign os_lead_side = lead_cells[(OS_SIDE_RANK-1)*IB +: IB];
+        end else begin : g_no_os
+            assign lag_cells    = {(REF_CELLS*IB){1'b0}};
+            assign lead_cells   = {(REF_CELLS*IB){1'b0}};
+            assign os_lag_side  = {IB{1'b0}};
+            assign os_lead_side = {IB{1'b0}};
+        end
+    endgenerate
+
+    // ------------------------------------------------------------------
     // Datapath functions, one per step of the contract
     // ------------------------------------------------------------------
-    // Noise statistic S (docs/bit-true.md section 3). The parameter tests
-    // come first so a simulator skips the code of the other modes.
+    // OS: the k-th smallest of both sides from the two sorted arrays, the
+    // minimum over the splits i + j = k (i from max(0, k-R) to min(k, R)) of
+    // max(lag_i, lead_j), lag_i the i-th smallest lagging cell (lag_0 = lead_0
+    // = 0, below every cell). Unrolled: one comparator per max (none where i
+    // or j is 0) and a chain of minima.
+    function [IB-1:0] os_select;
+        input [REF_CELLS*IB-1:0] lag;
+        input [REF_CELLS*IB-1:0] lead;
+        reg   [IB-1:0]           x;
+        reg   [IB-1:0]           y;
+        reg   [IB-1:0]           c;
+        integer                  i;
+        begin
+            os_select = {IB{1'b1}};
+            if (KIND == 3) begin
+                for (i = OS_SPLIT_LO; i <= OS_SPLIT_HI; i = i + 1) begin
+                    x = (i == 0) ? {IB{1'b0}} : lag[(i-1)*IB +: IB];
+                    y = (i == OS_RANK) ? {IB{1'b0}} : lead[(OS_RANK-i-1)*IB +: IB];
+                    c = (x >= y) ? x : y;
+                    if (c < os_select) os_select = c;
+                end
+            end
+        end
+    endfunction
+
+    // Noise statistic S (docs/bit-true.md section 3): lag and lead are the
+    // side sums (OS: each side's ceil(k/2)-th smallest cell), both is the
+    // OS statistic of both sides. The parameter tests come first so a
+    // simulator skips the code of the other modes.
     function [STAT_BITS-1:0] noise_statistic;
         input [SUM_BITS-1:0] lag;
         input [SUM_BITS-1:0] lead;
+        input [IB-1:0]       both;
         input                lag_full;
         input                lead_full;
         reg   [STAT_BITS-1:0] lag_e;
@@ -302,8 +488,11 @@ module cfar_stream #(
                 noise_statistic = lag_e + lead_e;
             end else if (KIND == 1) begin
                 noise_statistic = (lag_e >= lead_e) ? lag_e : lead_e;
-            end else begin
+            end else if (KIND == 2) begin
                 noise_statistic = (lag_e <= lead_e) ? lag_e : lead_e;
+            end else begin
+                // OS: the k-th smallest of both sides' reference cells.
+                noise_statistic = both;
             end
             // One-sided policy at a frame edge: only the complete side counts
             // (at most one side is incomplete since frames are >= W long).
@@ -381,6 +570,8 @@ module cfar_stream #(
     // Forming: the fields of the word whose CUT sits at position HALF after
     // the step. With one pipeline stage they are the values the registers
     // are about to take; otherwise the window registers are the first stage.
+    // For OS, f_lag and f_lead carry each side's ceil(k/2)-th smallest cell
+    // (the one-sided statistic) and os_both the k-th smallest of both.
     // ------------------------------------------------------------------
     wire                form_valid_next = step & body_reg[HALF-1];
     wire [SUM_BITS-1:0] f_lag;
@@ -394,14 +585,14 @@ module cfar_stream #(
             // The sums after this step, modulo 2^SUM_BITS as in the clocked block above.
             wire [SUM_BITS-1:0] sum_lag_next  = sum_lag_reg + lag_enter - lag_leave;
             wire [SUM_BITS-1:0] sum_lead_next = sum_lead_reg + enter_value - lead_leave;
-            assign f_lag       = sum_lag_next;
-            assign f_lead      = sum_lead_next;
+            assign f_lag       = (KIND == 3) ? os_lag_side : sum_lag_next;
+            assign f_lead      = (KIND == 3) ? os_lead_side : sum_lead_next;
             assign f_lag_full  = body_reg[2*HALF-1];
-            assign f_lead_full = accept;
-            assign f_side      = {last_reg[HALF-1], body_reg[2*HALF-1] & accept, win_reg[(HALF-1)*IB +: IB]};
+            assign f_lead_full = enter_body;
+            assign f_side      = {last_reg[HALF-1], body_reg[2*HALF-1] & enter_body, win_reg[(HALF-1)*IB +: IB]};
         end else begin : g_form_reg
-            assign f_lag       = sum_lag_reg;
-            assign f_lead      = sum_lead_reg;
+            assign f_lag       = (KIND == 3) ? os_lag_side : sum_lag_reg;
+            assign f_lead      = (KIND == 3) ? os_lead_side : sum_lead_reg;
             assign f_lag_full  = body_reg[2*HALF];
             assign f_lead_full = body_reg[0];
             assign f_side      = {last_reg[HALF], body_reg[2*HALF] & body_reg[0], win_reg[HALF*IB +: IB]};
@@ -432,22 +623,22 @@ module cfar_stream #(
         if (PIPELINE_STAGES <= 2) begin : g_out_direct
             always @(posedge clk) begin
                 if (advance) begin
-                    out_word_reg <= output_word(scaled_product(noise_statistic(f_lag, f_lead, f_lag_full,
-                                                                               f_lead_full)), f_side);
+                    out_word_reg <= output_word(scaled_product(noise_statistic(f_lag, f_lead, os_select(lag_cells, lead_cells),
+                                                                               f_lag_full, f_lead_full)), f_side);
                 end
             end
         end else begin : g_out_staged
             if (PIPELINE_STAGES == 3) begin : g_mul_from_sums
                 always @(posedge clk) begin
                     if (advance) begin
-                        mul_reg      <= scaled_product(noise_statistic(f_lag, f_lead, f_lag_full, f_lead_full));
+                        mul_reg      <= scaled_product(noise_statistic(f_lag, f_lead, os_select(lag_cells, lead_cells), f_lag_full, f_lead_full));
                         mul_side_reg <= f_side;
                     end
                 end
             end else begin : g_stat_then_mul
                 always @(posedge clk) begin
                     if (advance) begin
-                        stat_reg      <= noise_statistic(f_lag, f_lead, f_lag_full, f_lead_full);
+                        stat_reg      <= noise_statistic(f_lag, f_lead, os_select(lag_cells, lead_cells), f_lag_full, f_lead_full);
                         stat_side_reg <= f_side;
                         mul_reg       <= scaled_product(stat_reg);
                         mul_side_reg  <= stat_side_reg;
@@ -475,6 +666,104 @@ module cfar_stream #(
     assign m_axis_tvalid = out_valid;
     assign m_axis_tdata  = out_word_reg;
     assign m_axis_tlast  = out_word_reg[OUT_BITS-1];
+
+endmodule
+
+// cfar_stream_rank_side: the CELLS reference cells of one side of the OS
+// window, kept sorted ascending in one packed register (smallest at the
+// LSBs). At each step one cell leaves (leave_cell, the value of a cell that
+// is in the array) and one enters (enter_cell):
+//   p = number of cells < leave_cell     (the leaving cell's place),
+//   b = the array without cell p          (cells above p move down one),
+//   q = number of cells of b < enter_cell (the entering cell's place),
+//   new[j] = b[j] (j < q), enter_cell (j = q), b[j-1] (j > q).
+// Every cell is compared with both values at once (2*CELLS comparators, each
+// CELL_BITS wide, no longer carry chain), and each cell of the result is a
+// 4:1 choice among a[j-1], a[j], a[j+1] and enter_cell: one step per clock
+// for any CELLS. The array resets to zeros, the value of a window after reset.
+//
+// Simulation speed: the update is one function of packed vectors called in
+// the clocked block, so a simulator evaluates it once per step (comparators
+// written as separate nets cost Icarus several times more). With
+// NEXT_OUT = 1 the same function also drives sorted_next.
+module cfar_stream_rank_side #(
+    // Width of one cell in bits, >= 1.
+    parameter integer CELL_BITS = 16,
+    // Cells on the side (R), >= 1.
+    parameter integer CELLS = 16,
+    // 1 = drive sorted_next (the array after a step now), 0 = leave it 0.
+    parameter integer NEXT_OUT = 0
+) (
+    input  wire                       clk,
+    // Synchronous reset, active high.
+    input  wire                       rst,
+    // Remove leave_cell and insert enter_cell at this clock edge.
+    input  wire                       step,
+    input  wire [CELL_BITS-1:0]       enter_cell,
+    input  wire [CELL_BITS-1:0]       leave_cell,
+    // The array now, ascending, cell j in [j*CELL_BITS +: CELL_BITS].
+    output wire [CELLS*CELL_BITS-1:0] sorted,
+    // The array after a step with the present enter_cell and leave_cell (NEXT_OUT = 1).
+    output wire [CELLS*CELL_BITS-1:0] sorted_next
+);
+
+    // Width of the packed array.
+    localparam integer VB = CELLS * CELL_BITS;
+    // Mask of cell 0.
+    localparam [VB-1:0] CELL0 = {CELL_BITS{1'b1}};
+
+    // Illegal parameter combinations stop elaboration (see cfar_stream).
+    generate
+        if (CELL_BITS < 1 || CELLS < 1) begin : g_err_size
+            `CFAR_STREAM_STOP(cfar_stream_PARAMETER_ERROR__rank_side_needs_CELL_BITS_and_CELLS_at_least_1)
+        end
+    endgenerate
+
+    reg  [VB-1:0] sorted_reg;
+
+    // The array after removing leave and inserting enter. The loop unrolls
+    // into 2*CELLS comparators working in parallel.
+    function [VB-1:0] rank_update;
+        input [VB-1:0]        a;
+        input [CELL_BITS-1:0] enter;
+        input [CELL_BITS-1:0] leave;
+        reg   [VB-1:0]        lt_leave;
+        reg   [VB-1:0]        lt_enter;
+        reg   [VB-1:0]        b;
+        reg   [VB-1:0]        before_q;
+        reg   [VB-1:0]        upto_q;
+        reg   [CELL_BITS-1:0] here;
+        integer               k;
+        begin
+            // All bits of cell k set when cell k < leave (cells 0 .. p-1) / < enter.
+            lt_leave = {VB{1'b0}};
+            lt_enter = {VB{1'b0}};
+            for (k = 0; k < CELLS; k = k + 1) begin
+                here = a[k*CELL_BITS +: CELL_BITS];
+                if (here < leave) lt_leave[k*CELL_BITS +: CELL_BITS] = {CELL_BITS{1'b1}};
+                if (here < enter) lt_enter[k*CELL_BITS +: CELL_BITS] = {CELL_BITS{1'b1}};
+            end
+            // b[j] = a[j] below p, a[j+1] from p on.
+            b        = (a & lt_leave) | ((a >> CELL_BITS) & ~lt_leave);
+            // j < q exactly when b[j] < enter: a[j] < enter below p, a[j+1] < enter from p on.
+            before_q = (lt_enter & lt_leave) | ((lt_enter >> CELL_BITS) & ~lt_leave);
+            // j <= q.
+            upto_q   = (before_q << CELL_BITS) | CELL0;
+            rank_update = (b & before_q) | ({CELLS{enter}} & upto_q & ~before_q) | ((b << CELL_BITS) & ~upto_q);
+        end
+    endfunction
+
+    always @(posedge clk) begin
+        if (rst) begin
+            sorted_reg <= {VB{1'b0}};
+        end else if (step) begin
+            sorted_reg <= rank_update(sorted_reg, enter_cell, leave_cell);
+        end
+    end
+
+    assign sorted      = sorted_reg;
+    assign sorted_next = (NEXT_OUT != 0) ? rank_update(sorted_reg, enter_cell, leave_cell)
+                                         : {VB{1'b0}};
 
 endmodule
 `undef CFAR_STREAM_STOP

@@ -28,10 +28,11 @@
 //   with TDATA stable until the transfer);
 // - with STALL_PERCENT = 0 and the sink not waiting for TVALID, the drain:
 //   s_axis_tready low for exactly R+G cycles after each accepted last
-//   marker, high again afterwards;
+//   marker (circular: L+2(R+G) replay cycles for a frame of L samples),
+//   high again afterwards;
 // - with GAP_PERCENT = 0, STALL_PERCENT = 0 and the sink not waiting for
 //   TVALID, the latency of every word: R+G+PIPELINE_STAGES cycles from its
-//   input transfer to its output transfer.
+//   input transfer to its output transfer (circular: L+2(R+G)+PIPELINE_STAGES).
 //
 // Every file name and knob below is a parameter and can also be overridden at
 // run time by a plusarg of the same name (+STIM_FILE=..., +GAP_PERCENT=...,
@@ -46,10 +47,14 @@ module cfar_stream_tb;
     parameter integer REF_CELLS = 16;
     // Guard cells per side G.
     parameter integer GUARD_CELLS = 2;
-    // Detector kind: 0 = CA, 1 = GO, 2 = SO.
+    // Detector kind: 0 = CA, 1 = GO, 2 = SO, 3 = OS.
     parameter integer KIND = 0;
-    // Edge policy: 0 = skip, 1 = zero-pad, 2 = one-sided.
+    // OS rank k (KIND = 3).
+    parameter integer OS_RANK = 1;
+    // Edge policy: 0 = skip, 1 = zero-pad, 2 = one-sided, 3 = circular.
     parameter integer EDGE = 0;
+    // Circular frame store depth (EDGE = 3).
+    parameter integer MAX_FRAME_LENGTH = 1024;
     // Running-sum width W_S.
     parameter integer SUM_BITS = 20;
     // The constant A.
@@ -145,7 +150,9 @@ module cfar_stream_tb;
         .REF_CELLS          (REF_CELLS),
         .GUARD_CELLS        (GUARD_CELLS),
         .KIND               (KIND),
+        .OS_RANK            (OS_RANK),
         .EDGE               (EDGE),
+        .MAX_FRAME_LENGTH   (MAX_FRAME_LENGTH),
         .SUM_BITS           (SUM_BITS),
         .ALPHA_INT          (ALPHA_INT),
         .DROP_BITS          (DROP_BITS),
@@ -212,6 +219,9 @@ module cfar_stream_tb;
     integer idle       = 0;   // cycles without a transfer while the sink waits for TVALID
     integer n_errors   = 0;
     integer drain_left = -1;  // cycles of s_axis_tready low still expected (-1: not in a drain)
+    integer frame_start = 0;  // circular: index of the first stimulus word of the frame being sent
+    integer frame_len  [0:MAX_WORDS-1];  // circular: length of each frame sent, by frame number
+    integer frames_in  = 0;   // circular: frames sent
     reg     active     = 1'b0; // between reset release and the last expected word
     reg     done       = 1'b0;
     reg     have_first = 1'b0;
@@ -437,6 +447,13 @@ module cfar_stream_tb;
                     if (check_latency) in_cycle[in_idx] = cycle;
                     next_idx = in_idx + 1;
                     if (s_tlast) drain_left = HALF;
+                    if (s_tlast && EDGE == 3) begin
+                        // Circular: the stored frame is replayed, L + 2H steps (docs/bit-true.md section 9).
+                        frame_len[frames_in] = in_idx + 1 - frame_start;
+                        drain_left  = frame_len[frames_in] + 2 * HALF;
+                        frames_in   = frames_in + 1;
+                        frame_start = in_idx + 1;
+                    end
                 end
             end
             if (!s_tvalid || s_tready) begin
@@ -481,6 +498,7 @@ module cfar_stream_tb;
                     if ({m_tlast, m_tdata} !== exp_word) report_mismatch(exp_word[OUT_W-1:0], m_tdata, m_tlast);
                     if (check_latency) begin
                         latency = cycle - in_cycle[out_idx];
+                        if (EDGE == 3) latency = latency - frame_len[exp_frame] - HALF;
                         if (latency != HALF + PIPELINE_STAGES) begin
                             if (n_errors < max_reports)
                                 $display("ERROR: word %0d: latency %0d cycles, expected R+G+PIPELINE_STAGES = %0d",
