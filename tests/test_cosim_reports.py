@@ -50,7 +50,8 @@ WRAPPER = """\
 `default_nettype none
 module seeded_core #(
     parameter integer INPUT_BITS = 16, parameter integer REF_CELLS = 16, parameter integer GUARD_CELLS = 2,
-    parameter integer KIND = 0, parameter integer EDGE = 0, parameter integer SUM_BITS = 20,
+    parameter integer KIND = 0, parameter integer OS_RANK = 1, parameter integer EDGE = 0,
+    parameter integer MAX_FRAME_LENGTH = 256, parameter integer SUM_BITS = 20,
     parameter [63:0] ALPHA_INT = 64'd2212, parameter integer DROP_BITS = 12,
     parameter integer THRESHOLD_FRAC_BITS = 0, parameter integer THRESHOLD_BITS = 21,
     parameter integer ROUNDING = 1, parameter integer OVERFLOW = 0, parameter integer COMPARE_GE = 0,
@@ -63,7 +64,7 @@ module seeded_core #(
     input  wire m_axis_tready, output wire m_axis_tlast
 );
     cfar_stream #(.INPUT_BITS(INPUT_BITS), .REF_CELLS(REF_CELLS), .GUARD_CELLS(GUARD_CELLS + @GUARD@), .KIND(KIND),
-        .EDGE(EDGE), .SUM_BITS(SUM_BITS), .ALPHA_INT(ALPHA_INT), .DROP_BITS(DROP_BITS),
+        .OS_RANK(OS_RANK), .EDGE(EDGE), .MAX_FRAME_LENGTH(MAX_FRAME_LENGTH), .SUM_BITS(SUM_BITS), .ALPHA_INT(ALPHA_INT), .DROP_BITS(DROP_BITS),
         .THRESHOLD_FRAC_BITS(THRESHOLD_FRAC_BITS), .THRESHOLD_BITS(THRESHOLD_BITS), .ROUNDING(ROUNDING),
         .OVERFLOW(OVERFLOW), .COMPARE_GE(@GE@), .TRUNCATE_PARTIALS(TRUNCATE_PARTIALS),
         .PIPELINE_STAGES(PIPELINE_STAGES), .SRST_LEVEL(SRST_LEVEL))
