@@ -95,6 +95,14 @@ def check_safe_target(output: str | Path, field: str = "--output", protect: Iter
     return out
 
 
+def _size(n: int) -> str:
+    for unit in ("bytes", "kB", "MB", "GB", "TB", "PB"):
+        if n < 1000 or unit == "PB":
+            return f"{n:.0f} {unit}" if unit == "bytes" else f"{n:.3g} {unit}"
+        n /= 1000
+    return ""
+
+
 def check_target(out: Path, force: bool, field: str = "--output") -> None:
     """Refuse a target that is a file, or a non-empty folder without ``force``."""
     if out.exists() or out.is_symlink():
@@ -201,7 +209,7 @@ def _move_into_place(tmp: Path, out: Path) -> None:
 
 @contextmanager
 def staged_folder(output: str | Path, force: bool = False, field: str = "--output",
-                  protect: Iterable[str | Path] = ()) -> Iterator[Path]:
+                  protect: Iterable[str | Path] = (), need_bytes: int = 0) -> Iterator[Path]:
     """Yield a temporary folder beside ``output``; rename it to ``output`` when the block ends cleanly.
 
     Parameters
@@ -215,13 +223,16 @@ def staged_folder(output: str | Path, force: bool = False, field: str = "--outpu
     protect : iterable of path
         Input files (the spec, RTL files) that no target may hold
         (see :func:`check_safe_target`).
+    need_bytes : int
+        About how much the folder will hold: refused at once when the target's
+        file system has less free space.
 
     Raises
     ------
     SpecError
         For an unsafe target (:func:`check_safe_target`), a target that is a
-        file, a non-empty target without ``force``, or a parent folder that
-        cannot be made; nothing is written then.
+        file, a non-empty target without ``force``, a parent folder that
+        cannot be made, or too little free space; nothing is written then.
 
     Notes
     -----
@@ -239,6 +250,9 @@ def staged_folder(output: str | Path, force: bool = False, field: str = "--outpu
                         "a path whose parent is, or can be made, a writable folder") from None
     fd = _lock(tmp)
     try:
+        free = shutil.disk_usage(tmp).free
+        require(need_bytes <= free, field, f"the output needs about {_size(need_bytes)}, but only {_size(free)} "
+                f"are free in {str(out.parent)!r}", "a smaller output, or a file system with more free space")
         umask = os.umask(0)
         os.umask(umask)
         os.chmod(tmp, 0o777 & ~umask)  # mkdtemp makes it private; the result is an ordinary folder

@@ -33,6 +33,7 @@ import numpy as np
 
 from refmodel.block_spec import BlockSpec, spec_from_dict
 from refmodel.errors import SpecError, require
+from refmodel.input_files import open_regular
 from refmodel.fixedpoint.pipeline_fast import FastPipeline
 from refmodel.fixedpoint.word_format import FIELDS, PipelineOutput, pack_output, unpack_input, unpack_output
 
@@ -192,12 +193,12 @@ def _hash_findings(folder: Path, recs: dict) -> tuple[list[Finding], set[str]]:
         path = folder / r["name"]
         h, lines = hashlib.sha256(), 0
         try:
-            with open(path, "rb") as f:
+            with open_regular(path, r["name"]) as f:  # a FIFO or device in place of a file must not hang
                 while block := f.read(1 << 22):
                     h.update(block)
                     lines += block.count(b"\n")
-        except OSError as exc:
-            out.append(Finding(r["name"], f"cannot be read ({exc.strerror})"))
+        except (OSError, SpecError) as exc:
+            out.append(Finding(r["name"], f"cannot be read ({getattr(exc, 'problem', None) or exc.strerror})"))
             bad.add(r["name"])
             continue
         if h.hexdigest() != r["sha256"]:
@@ -480,7 +481,7 @@ def check_vector_set(folder: str | Path, *, chunk_samples: int = CHUNK) -> Check
     require((path / NAME).is_file(), "DIR", f"no {NAME} in {str(path)!r}", allowed)
     try:
         m = read_manifest(path)
-    except (OSError, ValueError) as exc:
+    except (OSError, ValueError, RecursionError) as exc:  # RecursionError: nested too deeply for json
         return CheckReport(str(path), (Finding(NAME, f"cannot be parsed ({exc})"),))
     head: list[Finding] = []
     hashes: list[Finding] = []
