@@ -64,12 +64,13 @@ def one_line(text: str) -> str:
     -------
     str
         A single printable line: newlines, escape sequences, bidirectional
-        overrides and other Unicode ``C*`` characters become ``\\n``,
-        ``\\x1b``, ``\\u202e``...
+        overrides, line and paragraph separators and the other Unicode
+        control and format characters (categories ``C*``, ``Zl``, ``Zp``)
+        become ``\\n``, ``\\x1b``, ``\\u202e``...
     """
     out = []
     for ch in text:
-        if unicodedata.category(ch).startswith("C"):
+        if unicodedata.category(ch)[0] == "C" or unicodedata.category(ch) in ("Zl", "Zp"):
             code = ord(ch)
             out.append(_ESCAPES.get(ch) or (f"\\x{code:02x}" if code < 0x100 else
                                             f"\\u{code:04x}" if code < 0x10000 else f"\\U{code:08x}"))
