@@ -113,8 +113,8 @@ def check_target(out: Path, force: bool, field: str = "--output") -> None:
 
 
 def _leftover_pattern(name: str) -> re.Pattern:
-    # tempfile.mkdtemp's random part is made of [a-z0-9_], never a dot, so the name cannot be mistaken.
-    return re.compile(rf"\.{re.escape(name)}\.(partial|old)-[a-z0-9_]+")
+    # tempfile.mkdtemp's random part is 8 characters of [a-z0-9_], never a dot, so the name cannot be mistaken.
+    return re.compile(rf"\.{re.escape(name)}\.(partial|old)-[a-z0-9_]{{8}}")
 
 
 def _lock(folder: Path, wait: bool = True) -> int | None:

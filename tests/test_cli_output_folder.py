@@ -103,23 +103,23 @@ def test_a_new_folder_beside_the_spec_is_still_fine(workdir, capsys):
 
 def test_leftovers_of_dead_runs_are_removed(tmp_path):
     out = tmp_path / "set"
-    (tmp_path / ".set.partial-abc123").mkdir()
-    (tmp_path / ".set.partial-abc123" / "stimulus.hex").write_text("0\n")
-    (tmp_path / ".set.old-x_9").mkdir()
-    (tmp_path / ".other.partial-abc").mkdir()  # another target's: not touched
-    (tmp_path / ".set.partial-x.partial-abc").mkdir()  # target "set.partial-x"'s: not touched
+    (tmp_path / ".set.partial-abc12345").mkdir()
+    (tmp_path / ".set.partial-abc12345" / "stimulus.hex").write_text("0\n")
+    (tmp_path / ".set.old-x_9x_9x_").mkdir()
+    (tmp_path / ".other.partial-abcdefgh").mkdir()  # another target's: not touched
+    (tmp_path / ".set.partial-x.partial-abcdefgh").mkdir()  # target "set.partial-x"'s: not touched
     with staged_folder(out) as tmp:
         (tmp / "a").write_text("new\n")
     assert (out / "a").read_text() == "new\n"
-    assert _hidden(tmp_path) == [".other.partial-abc", ".set.partial-x.partial-abc"]
+    assert _hidden(tmp_path) == [".other.partial-abcdefgh", ".set.partial-x.partial-abcdefgh"]
 
 
 def test_previous_output_stranded_between_the_renames_comes_back(tmp_path):
     out = tmp_path / "set"
-    (tmp_path / ".set.old-k1" / "previous").mkdir(parents=True)
-    (tmp_path / ".set.old-k1" / "previous" / "manifest.json").write_text("previous\n")
-    (tmp_path / ".set.partial-k2").mkdir()
-    (tmp_path / ".set.partial-k2" / "manifest.json").write_text("unfinished\n")
+    (tmp_path / ".set.old-k1k1k1k1" / "previous").mkdir(parents=True)
+    (tmp_path / ".set.old-k1k1k1k1" / "previous" / "manifest.json").write_text("previous\n")
+    (tmp_path / ".set.partial-k2k2k2k2").mkdir()
+    (tmp_path / ".set.partial-k2k2k2k2" / "manifest.json").write_text("unfinished\n")
     # Without --force the restored previous output is kept and the new run refused.
     with pytest.raises(SpecError, match="not empty"):
         with staged_folder(out):
@@ -128,7 +128,7 @@ def test_previous_output_stranded_between_the_renames_comes_back(tmp_path):
 
 
 def test_a_folder_locked_by_a_live_process_is_left_alone(tmp_path):
-    busy = tmp_path / ".set.partial-live"
+    busy = tmp_path / ".set.partial-live0000"
     busy.mkdir()
     holder = subprocess.Popen(
         [sys.executable, "-c", textwrap.dedent("""
@@ -145,7 +145,7 @@ def test_a_folder_locked_by_a_live_process_is_left_alone(tmp_path):
     finally:
         holder.stdin.close()
         holder.wait(timeout=60)
-    assert recover_leftovers(tmp_path / "set") == ["removed .set.partial-live"]
+    assert recover_leftovers(tmp_path / "set") == ["removed .set.partial-live0000"]
 
 
 # ---------------------------------------------------------------- real processes, real signals
