@@ -9,8 +9,8 @@ naming the first differing file, line, frame and field), 2 for bad input
 from __future__ import annotations
 
 import argparse
-
-from vectors.checker import check_vector_set
+import dataclasses
+import json
 
 _DESCRIPTION = """\
 Check a folder written by 'cfarvec vectors': the manifest's own seal, the
@@ -22,17 +22,23 @@ difference is printed: file, line, frame, field); 2: DIR is not a set."""
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
     """Register the ``check`` sub-command; returns its parser (see :mod:`cfarvec.cli`)."""
-    p = subparsers.add_parser("check", help="verify a vector set (hashes, manifest, expected words vs the model)",
-                              description=_DESCRIPTION, formatter_class=argparse.RawDescriptionHelpFormatter)
+    p = subparsers.add_parser("check", description=_DESCRIPTION, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("folder", metavar="DIR", help="vector set folder")
     p.add_argument("--all", action="store_true", help="print every finding, one a line, after the summary")
+    p.add_argument("--json", action="store_true",
+                   help="print one JSON object (ok, counts, every finding with its file, line, frame, field)")
     p.set_defaults(func=run)
     return p
 
 
 def run(args: argparse.Namespace) -> int:
     """Check the set; print the summary; 0 when it agrees, 1 when not."""
+    from vectors.checker import check_vector_set
+
     report = check_vector_set(args.folder)
+    if args.json:
+        print(json.dumps({"ok": report.ok, "summary": report.summary(), **dataclasses.asdict(report)}))
+        return 0 if report.ok else 1
     print(report.summary())
     if args.all:
         for f in report.findings:

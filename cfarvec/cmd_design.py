@@ -12,11 +12,17 @@ from __future__ import annotations
 
 import argparse
 import json
-from typing import Callable
+from typing import TYPE_CHECKING, Callable
 
-from refmodel import threshold_design as td
-from refmodel.block_spec import BlockSpec, load_spec
 from refmodel.errors import SpecError
+from refmodel.spec_fields import integer_list, number_list
+
+if TYPE_CHECKING:
+    from refmodel.block_spec import BlockSpec
+
+# The detector kinds of refmodel.threshold_design.KINDS, here so that parsing needs no scipy
+# (test_cli_conventions checks that the two agree).
+KINDS = ("ca", "go", "so", "os")
 
 DEFAULT_SNR_DB = (10.0, 13.0, 16.0)
 DEFAULT_PD = 0.9
@@ -30,44 +36,44 @@ and the CFAR loss at --pd. Formulas and sources: docs/theory.md.
 
 What alpha multiplies: ca = mean of all N reference cells; go / so = the
 larger / smaller of the two half-window means (N/2 cells per side);
-os = the K-th smallest of the N reference cells."""
+os = the K-th smallest of the N reference cells. N counts both sides
+together (--ref-cells-total); a block spec counts per side
+(detector.ref_cells_per_side = N/2). List options take comma-separated
+values: --snr-db 10,13,16 (a list starting with a minus sign needs '=':
+--snr-db=-3,0,3), --swerling 0,1."""
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
     """Register the ``design`` sub-command; returns its parser (see :mod:`cfarvec.cli`)."""
     p = subparsers.add_parser(
         "design",
-        help="threshold multiplier (alpha) <-> Pfa, Pd and CFAR loss",
         description=_DESCRIPTION,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    p.add_argument("--detector", choices=td.KINDS, default="ca", help="detector kind (default: ca)")
+    p.add_argument("--detector", choices=KINDS, default="ca", help="detector kind (default: ca)")
     p.add_argument(
         "--spec", metavar="FILE", help="block spec (TOML): take the detector from it and add the fixed-point report"
     )
-    p.add_argument("--ref-cells", type=int, metavar="N", help="total reference cells N, both sides together")
+    p.add_argument("--ref-cells-total", type=int, metavar="N",
+                   help="reference cells N in total, both sides together (the spec's ref_cells_per_side is N/2)")
     p.add_argument("--rank", type=int, metavar="K", help="rank K in 1..N of the order statistic (os only)")
     target = p.add_mutually_exclusive_group()
     target.add_argument("--pfa", type=float, metavar="P", help="wanted false-alarm probability, in (0, 1)")
     target.add_argument("--alpha", type=float, metavar="A", help="given threshold multiplier (alpha), > 0")
     p.add_argument(
         "--snr-db",
-        type=float,
-        nargs="+",
-        default=list(DEFAULT_SNR_DB),
-        metavar="DB",
-        help="SNR values (dB) at which to report Pd (default: %(default)s)",
+        default=",".join(f"{v:g}" for v in DEFAULT_SNR_DB),
+        metavar="LIST",
+        help="SNRs (dB) at which to report Pd, comma-separated (default: %(default)s)",
     )
     p.add_argument(
         "--pd", type=float, default=DEFAULT_PD, metavar="P", help="Pd at which to report the CFAR loss (default: 0.9)"
     )
     p.add_argument(
         "--swerling",
-        type=int,
-        nargs="+",
-        choices=(0, 1),
-        default=None,
-        help="target models to report: 0 (non-fluctuating), 1 (Swerling I); default both",
+        default="0,1",
+        metavar="LIST",
+        help="target models to report, comma-separated: 0 (non-fluctuating), 1 (Swerling I) (default: 0,1)",
     )
     p.add_argument("--json", action="store_true", help="print one JSON object instead of text")
     p.set_defaults(func=run)
@@ -92,10 +98,16 @@ def build_report(args: argparse.Namespace) -> dict:
     refmodel.errors.SpecError
         On any out-of-range option.
     """
+    from refmodel import threshold_design as td
+    from refmodel.block_spec import load_spec
+
     spec = None
-    kind, n_ref, rank, pfa, alpha = args.detector, args.ref_cells, args.rank, args.pfa, args.alpha
+    kind, n_ref, rank, pfa, alpha = args.detector, args.ref_cells_total, args.rank, args.pfa, args.alpha
+    snr_db = number_list("--snr-db", args.snr_db)
+    swerling = integer_list("--swerling", args.swerling, 0, 1)
     if args.spec is not None:
-        given = [o for o, v in (("--ref-cells", n_ref), ("--rank", rank), ("--pfa", pfa), ("--alpha", alpha)) if v is not None]
+        given = [o for o, v in (("--ref-cells-total", n_ref), ("--rank", rank), ("--pfa", pfa), ("--alpha", alpha))
+                 if v is not None]
         if given:
             raise SpecError(given[0], "given together with --spec", "either --spec FILE or the detector options")
         spec = load_spec(args.spec)
@@ -103,19 +115,20 @@ def build_report(args: argparse.Namespace) -> dict:
         pfa, alpha = (spec.design_pfa, None) if spec.design_pfa is not None else (None, spec.alpha)
     else:
         if n_ref is None:
-            raise SpecError("--ref-cells", "missing", "an integer N >= 1 (or --spec FILE)")
+            raise SpecError("--ref-cells-total", "missing", "an integer N >= 1 (or --spec FILE)")
         if pfa is None and alpha is None:
             raise SpecError("--pfa", "missing (neither --pfa nor --alpha given)", "a number in (0, 1), or --alpha A > 0")
-    d = td.design(
-        kind,
-        n_ref,
-        pfa=pfa,
-        alpha=alpha,
-        rank=rank,
-        snr_db=args.snr_db,
-        loss_pd=args.pd,
-        swerling=args.swerling if args.swerling else (0, 1),
-    )
+    try:
+        d = td.design(kind, n_ref, pfa=pfa, alpha=alpha, rank=rank, snr_db=snr_db, loss_pd=args.pd,
+                      swerling=swerling)
+    except SpecError as exc:
+        if exc.field == "--ref-cells":  # the API's name for N; this option says that it is the total
+            raise SpecError("--ref-cells-total", exc.problem, exc.allowed) from None
+        raise
+    except OverflowError:  # alpha beyond the float range, e.g. ca with N = 1 at the smallest Pfa
+        given = ("--pfa", pfa) if pfa is not None else ("--alpha", alpha)
+        raise SpecError(given[0], f"got {given[1]!r}: alpha or Pfa overflows for N = {n_ref}",
+                        "a less extreme value") from None
     report = d.to_dict()
     if spec is not None:
         report["fixed"] = fixed_report(spec)
@@ -124,7 +137,7 @@ def build_report(args: argparse.Namespace) -> dict:
     return report
 
 
-def fixed_report(spec: BlockSpec) -> dict:
+def fixed_report(spec: "BlockSpec") -> dict:
     """The quantised constant of a block spec and the false-alarm rate it realises.
 
     Parameters
@@ -144,6 +157,7 @@ def fixed_report(spec: BlockSpec) -> dict:
         with its error bound; both against the design Pfa; and every derived
         width (:meth:`BlockSpec.derived`).
     """
+    from refmodel import threshold_design as td
     from refmodel.fixedpoint.exact_pfa import trigger_law
     from refmodel.map_spec import interior_twin
     from refmodel.study.quant_study import study_config

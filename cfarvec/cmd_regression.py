@@ -31,7 +31,7 @@ override it). Lists are comma-separated (1,2,3) and seeds may be a range
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
     """Register the ``regression`` sub-command; returns its parser (see :mod:`cfarvec.cli`)."""
-    p = subparsers.add_parser("regression", help="specs x seeds x simulators x modes co-simulation runs, one JUnit",
+    p = subparsers.add_parser("regression",
                               description=_DESCRIPTION, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("specs", nargs="*", metavar="SPEC", help="block specs (TOML)")
     p.add_argument("--plan", metavar="FILE", help="a TOML plan: specs, seeds, simulators, modes, samples, ...")

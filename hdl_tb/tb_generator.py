@@ -49,7 +49,7 @@ import numpy as np
 
 from refmodel.block_spec import BlockSpec
 from refmodel.errors import SpecError, require
-from refmodel.output_folder import check_not_precious, staged_folder
+from refmodel.output_folder import staged_folder
 from refmodel.fixedpoint.word_format import output_field_offsets
 from vectors.manifest import tool_version
 from vectors.vector_set import vector_settings, write_vector_set
@@ -419,9 +419,8 @@ def write_testbench(spec: BlockSpec, output: str | Path, *, rtl: Sequence[str | 
             ports_checked = True
 
     holds = tuple(f for f in (spec.source, *rtl) if f)
-    check_not_precious(output, output_field, holds)
     out = Path(output).absolute()
-    with staged_folder(out, force, output_field) as tmp:
+    with staged_folder(output, force, output_field, protect=holds) as tmp:
         config = _generate(tmp, spec, pm, rtl_files, reference, bench, dut_params, seed, samples,
                            settings.seed if seed is None else seed, gap_percent, stall_percent, sink, simulator)
     return BenchFolder(out, MappingProxyType(config), ports_checked)

@@ -23,6 +23,7 @@ from types import MappingProxyType
 from typing import Any, Mapping
 
 from .errors import SpecError, require
+from .input_files import MAX_SPEC_BYTES, read_text
 from .spec_fields import boolean, choice, choices, integer, number, table
 from .fixedpoint.fixed_arith import (OVERFLOW_MODES, ROUNDING_MODES, apply_overflow, naf_digits, quantise_constant,
                           scale_product)
@@ -33,6 +34,8 @@ COMPARES = (">", ">=")
 DOWNSTREAM_SECTIONS = ("vectors", "ports", "study")
 MAX_PRODUCT_BITS = 62
 MAX_WORD_BITS = 64  # output words are packed into uint64
+#: Largest threshold multiplier (alpha): the quantised constant must stay an integer a 62-bit product can hold.
+MAX_ALPHA = 2.0**62
 
 _DETECTOR_KEYS = {
     "kind": "ca",
@@ -391,7 +394,9 @@ def spec_from_dict(data: Mapping[str, Any], source: str | None = None) -> BlockS
 
         alpha = alpha_from_pfa(kind, 2 * r, pfa, rank)
     else:
-        alpha = number("detector.alpha", alpha, 0.0, open_lo=True)
+        alpha = number("detector.alpha", alpha, 0.0, MAX_ALPHA, open_lo=True)
+    require(alpha <= MAX_ALPHA, "detector.design_pfa", f"got {pfa!r}, which needs alpha = {alpha:.6g}",
+            f"a design_pfa whose alpha is at most {MAX_ALPHA:g}")
 
     w_in = integer("fixed.input_bits", fx["input_bits"], 1, 32)
     side_bits = (r * ((1 << w_in) - 1)).bit_length()
@@ -457,15 +462,21 @@ def load_spec(path: str | Path) -> BlockSpec:
     Raises
     ------
     SpecError
-        For a missing file, bad TOML, or any invalid field.
+        For a missing or unreadable file, a FIFO or device instead of a file,
+        a file over :data:`refmodel.input_files.MAX_SPEC_BYTES` or not UTF-8,
+        bad TOML (including values nested too deeply to parse), or any
+        invalid field.
     """
     p = Path(path)
-    try:
-        text = p.read_text(encoding="utf-8")
-    except OSError as exc:
-        raise SpecError("SPEC", f"cannot read {str(p)!r} ({exc.strerror})", "a readable TOML file") from None
+    allowed = f"a readable UTF-8 TOML file of at most {MAX_SPEC_BYTES} bytes"
+    text = read_text(p, "SPEC", max_bytes=MAX_SPEC_BYTES, allowed=allowed)
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise SpecError("SPEC", f"{p.name} is not valid TOML ({exc})", "a TOML file") from None
-    return spec_from_dict(data, source=str(p))
+    except RecursionError:
+        raise SpecError("SPEC", f"{p.name} nests arrays or tables too deeply to read", "a TOML file") from None
+    try:
+        return spec_from_dict(data, source=str(p))
+    except RecursionError:  # a deeply nested value echoed in an error
+        raise SpecError("SPEC", f"{p.name} nests arrays or tables too deeply to check", "a block spec") from None

@@ -19,35 +19,35 @@ from cfarvec import cli
 
 ROOT = Path(__file__).resolve().parents[1]
 
-DONE_WHEN = ["--detector", "ca", "--ref-cells", "32", "--pfa", "1e-6", "--json"]
+DONE_WHEN = ["--detector", "ca", "--ref-cells-total", "32", "--pfa", "1e-6", "--json"]
 
 # (arguments after "design", option the one-line error must name); one case per rule of the
 # issue, run as real processes
 BAD = [
-    (["--ref-cells", "16", "--pfa", "1.5"], "--pfa"),
-    (["--ref-cells", "16", "--alpha", "0"], "--alpha"),
-    (["--detector", "go", "--ref-cells", "15", "--pfa", "1e-3"], "--ref-cells"),
-    (["--detector", "os", "--ref-cells", "16", "--rank", "17", "--pfa", "1e-3"], "--rank"),
-    (["--ref-cells", "16", "--pfa", "1e-3", "--alpha", "4"], "--alpha"),
+    (["--ref-cells-total", "16", "--pfa", "1.5"], "--pfa"),
+    (["--ref-cells-total", "16", "--alpha", "0"], "--alpha"),
+    (["--detector", "go", "--ref-cells-total", "15", "--pfa", "1e-3"], "--ref-cells-total"),
+    (["--detector", "os", "--ref-cells-total", "16", "--rank", "17", "--pfa", "1e-3"], "--rank"),
+    (["--ref-cells-total", "16", "--pfa", "1e-3", "--alpha", "4"], "--alpha"),
 ]
 
 # more bad input, through cli.main in this process
 BAD_IN_PROCESS = [
-    (["--ref-cells", "16", "--pfa", "0"], "--pfa"),
-    (["--ref-cells", "16", "--pfa", "1"], "--pfa"),
-    (["--ref-cells", "16", "--pfa", "nan"], "--pfa"),
-    (["--ref-cells", "16", "--alpha", "-3"], "--alpha"),
-    (["--ref-cells", "16", "--alpha", "inf"], "--alpha"),
-    (["--ref-cells", "0", "--pfa", "1e-3"], "--ref-cells"),
-    (["--detector", "so", "--ref-cells", "9", "--alpha", "4"], "--ref-cells"),
-    (["--detector", "os", "--ref-cells", "16", "--rank", "0", "--pfa", "1e-3"], "--rank"),
-    (["--detector", "os", "--ref-cells", "16", "--pfa", "1e-3"], "--rank"),
-    (["--ref-cells", "16", "--rank", "3", "--pfa", "1e-3"], "--rank"),
-    (["--ref-cells", "16", "--pfa", "0.5", "--pd", "0.4"], "--pd"),
-    (["--ref-cells", "16", "--pfa", "1e-3", "--pd", "1"], "--pd"),
-    (["--ref-cells", "16", "--pfa", "1e-3", "--snr-db", "nan"], "--snr-db"),
-    (["--ref-cells", "16", "--pfa", "1e-3", "--swerling", "2"], "--swerling"),
-    (["--ref-cells", "16"], "--pfa"),
+    (["--ref-cells-total", "16", "--pfa", "0"], "--pfa"),
+    (["--ref-cells-total", "16", "--pfa", "1"], "--pfa"),
+    (["--ref-cells-total", "16", "--pfa", "nan"], "--pfa"),
+    (["--ref-cells-total", "16", "--alpha", "-3"], "--alpha"),
+    (["--ref-cells-total", "16", "--alpha", "inf"], "--alpha"),
+    (["--ref-cells-total", "0", "--pfa", "1e-3"], "--ref-cells-total"),
+    (["--detector", "so", "--ref-cells-total", "9", "--alpha", "4"], "--ref-cells-total"),
+    (["--detector", "os", "--ref-cells-total", "16", "--rank", "0", "--pfa", "1e-3"], "--rank"),
+    (["--detector", "os", "--ref-cells-total", "16", "--pfa", "1e-3"], "--rank"),
+    (["--ref-cells-total", "16", "--rank", "3", "--pfa", "1e-3"], "--rank"),
+    (["--ref-cells-total", "16", "--pfa", "0.5", "--pd", "0.4"], "--pd"),
+    (["--ref-cells-total", "16", "--pfa", "1e-3", "--pd", "1"], "--pd"),
+    (["--ref-cells-total", "16", "--pfa", "1e-3", "--snr-db", "nan"], "--snr-db"),
+    (["--ref-cells-total", "16", "--pfa", "1e-3", "--swerling", "2"], "--swerling"),
+    (["--ref-cells-total", "16"], "--pfa"),
 ]
 
 
@@ -117,7 +117,7 @@ def _run_json(capsys, *args):
 
 
 def test_alpha_given_reports_its_pfa(capsys):
-    report = _run_json(capsys, "--ref-cells", "24", "--alpha", "12.5", "--swerling", "1", "--snr-db", "7", "19")
+    report = _run_json(capsys, "--ref-cells-total", "24", "--alpha", "12.5", "--swerling", "1", "--snr-db", "7,19")
     # Finn & Johnson 1968; Richards 2005, ch. 7: Pfa = (1 + alpha/N)^-N
     assert report["pfa"] == pytest.approx((1 + 12.5 / 24) ** -24, rel=1e-12)
     assert report["alpha"] == 12.5 and report["inputs"]["alpha"] == 12.5 and report["inputs"]["pfa"] is None
@@ -156,7 +156,7 @@ def _os_pd(alpha, n, k, snr, swerling):
 
 
 def test_os_json(capsys):
-    report = _run_json(capsys, "--detector", "os", "--ref-cells", "24", "--rank", "18", "--pfa", "1e-4", "--pd", "0.8")
+    report = _run_json(capsys, "--detector", "os", "--ref-cells-total", "24", "--rank", "18", "--pfa", "1e-4", "--pd", "0.8")
     alpha = report["alpha"]
     # Rohling, IEEE Trans. AES-19(4), 1983: Pfa = prod_{i<k} (N-i)/(N-i+alpha)
     assert math.prod((24 - i) / (24 - i + alpha) for i in range(18)) == pytest.approx(1e-4, rel=1e-9)
@@ -183,7 +183,7 @@ def test_os_json(capsys):
 
 
 def test_text_output(capsys):
-    rc = cli.main(["design", "--detector", "go", "--ref-cells", "16", "--pfa", "1e-5", "--snr-db", "12"])
+    rc = cli.main(["design", "--detector", "go", "--ref-cells-total", "16", "--pfa", "1e-5", "--snr-db", "12"])
     out = capsys.readouterr().out
     assert rc == 0
     # common practice, no source: the text report shows alpha and each requested case

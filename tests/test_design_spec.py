@@ -43,9 +43,9 @@ def test_ca_spec_report_matches_hand_quantisation(capsys, tmp_path):
 
 
 def test_spec_with_detector_options_is_refused(capsys):
-    code, _, err = _run(capsys, "design", "--spec", "examples/harbour_ca.toml", "--ref-cells", "8")
+    code, _, err = _run(capsys, "design", "--spec", "examples/harbour_ca.toml", "--ref-cells-total", "8")
     assert code == 2
-    assert err.count("\n") == 1 and "--ref-cells" in err
+    assert err.count("\n") == 1 and "--ref-cells-total" in err
 
 
 def test_missing_spec_file_is_one_line(capsys, tmp_path):

@@ -222,7 +222,7 @@ def test_cli_writes_refuses_and_reports_bad_input_in_one_line(tmp_path, capsys):
     blocker.write_text("x")
     cases = [
         (["vectors", str(SMALL), "-o", str(tmp_path / "b"), "--seed", "-4"], "--seed"),
-        (["vectors", str(SMALL), "-o", str(tmp_path / "c"), "--formats", "hex", "xml"], "--formats"),
+        (["vectors", str(SMALL), "-o", str(tmp_path / "c"), "--formats", "hex,xml"], "--formats"),
         (["vectors", str(tmp_path / "none.toml"), "-o", str(tmp_path / "d")], "SPEC"),
         (["vectors", str(SMALL), "-o", str(blocker / "sub")], "plainfile"),
         (["check", str(tmp_path)], "DIR"),

@@ -36,6 +36,7 @@ import numpy as np
 from refmodel.block_spec import BlockSpec, spec_from_dict
 from refmodel.errors import SpecError, require
 from refmodel.fixedpoint.map_fast import MapPipeline
+from refmodel.input_files import open_regular
 from refmodel.fixedpoint.pipeline_fast import FastPipeline
 from refmodel.fixedpoint.word_format import FIELDS, PipelineOutput, pack_output, unpack_input, unpack_output
 
@@ -196,12 +197,12 @@ def _hash_findings(folder: Path, recs: dict) -> tuple[list[Finding], set[str]]:
         path = folder / r["name"]
         h, lines = hashlib.sha256(), 0
         try:
-            with open(path, "rb") as f:
+            with open_regular(path, r["name"]) as f:  # a FIFO or device in place of a file must not hang
                 while block := f.read(1 << 22):
                     h.update(block)
                     lines += block.count(b"\n")
-        except OSError as exc:
-            out.append(Finding(r["name"], f"cannot be read ({exc.strerror})"))
+        except (OSError, SpecError) as exc:
+            out.append(Finding(r["name"], f"cannot be read ({getattr(exc, 'problem', None) or exc.strerror})"))
             bad.add(r["name"])
             continue
         if h.hexdigest() != r["sha256"]:
@@ -503,7 +504,7 @@ def check_vector_set(folder: str | Path, *, chunk_samples: int = CHUNK) -> Check
     try:
         raw = (path / NAME).read_bytes()
         m = parse_manifest(raw)
-    except (OSError, ValueError) as exc:
+    except (OSError, ValueError, RecursionError) as exc:  # RecursionError: nested too deeply for json
         return CheckReport(str(path), (Finding(NAME, f"cannot be parsed ({exc})"),))
     form = []
     line = form_difference(raw, m)

@@ -43,7 +43,7 @@ from .corner_cases import corner_case_blocks
 from .manifest import build_manifest, write_manifest
 from .random_frames import random_blocks
 from .stimulus import FrameBlock, Scenario, Target, scenario_blocks
-from .writers import FORMATS, SUFFIX, VectorFileWriter
+from .writers import FORMATS, SUFFIX, VectorFileWriter, line_bytes
 
 SOURCES = ("corner_cases", "scenario", "random")
 STIMULUS_COLUMNS = ("frame", "index", "sample", "last")
@@ -335,6 +335,30 @@ def _generate(spec: BlockSpec, settings: VectorSettings, folder: Path) -> dict:
     return manifest
 
 
+def estimated_bytes(spec: BlockSpec, settings: VectorSettings) -> int:
+    """About how many bytes the set's data files take (random frames at their mean length).
+
+    Checked against the free space of the target's file system before anything is
+    written (:func:`refmodel.output_folder.staged_folder`), so an absurd frame count
+    is refused at once instead of filling the disk.
+    """
+    frames = settings.scenario_frames + settings.random_frames + (64 if settings.include_corner_cases else 0)
+    longest = max(spec.frame_length, settings.random_length_max)
+    samples = ((settings.scenario_frames + (64 if settings.include_corner_cases else 0)) * spec.frame_length
+               + settings.random_frames * (spec.window_length + settings.random_length_max) // 2)
+    digits = {"frame": len(str(frames)), "index": len(str(longest)), "cut": len(str((1 << spec.input_bits) - 1)),
+              "threshold": len(str((1 << spec.threshold_bits) - 1))}
+    per_sample = 0
+    for fmt in settings.formats:
+        if fmt == "csv":
+            stim = digits["frame"] + digits["index"] + digits["cut"] + 1
+            exp = digits["frame"] + digits["index"] + digits["cut"] + digits["threshold"] + 3
+            per_sample += stim + len(STIMULUS_COLUMNS) + exp + len(EXPECTED_COLUMNS)
+        else:
+            per_sample += line_bytes(fmt, spec.input_bits + 1) + line_bytes(fmt, spec.output_bits)
+    return samples * per_sample
+
+
 def write_vector_set(spec: BlockSpec, output: str | Path, *, seed: int | None = None, formats=None,
                      force: bool = False) -> dict:
     """Generate a vector set into the folder ``output``.
@@ -361,11 +385,13 @@ def write_vector_set(spec: BlockSpec, output: str | Path, *, seed: int | None = 
     Raises
     ------
     SpecError
-        For bad settings or an unusable target (nothing is written).
+        For bad settings, an unusable target, or a set larger than the free
+        space of the target's file system (:func:`estimated_bytes`); nothing
+        is written then.
     OSError
         When writing fails (nothing is left behind).
     """
     settings = vector_settings(spec, seed=seed, formats=formats)
-    with staged_folder(output, force) as tmp:
+    with staged_folder(output, force, need_bytes=estimated_bytes(spec, settings)) as tmp:
         manifest = _generate(spec, settings, tmp)
     return manifest
