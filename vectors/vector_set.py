@@ -342,10 +342,15 @@ def estimated_bytes(spec: BlockSpec, settings: VectorSettings) -> int:
     written (:func:`refmodel.output_folder.staged_folder`), so an absurd frame count
     is refused at once instead of filling the disk.
     """
-    frames = settings.scenario_frames + settings.random_frames + (64 if settings.include_corner_cases else 0)
-    longest = max(spec.frame_length, settings.random_length_max)
-    samples = ((settings.scenario_frames + (64 if settings.include_corner_cases else 0)) * spec.frame_length
-               + settings.random_frames * (spec.window_length + settings.random_length_max) // 2)
+    if getattr(spec, "is_map", False):  # every frame is one whole map
+        frames = settings.scenario_maps + settings.random_maps + (64 if settings.include_corner_cases else 0)
+        longest = spec.map_cells
+        samples = frames * spec.map_cells
+    else:
+        frames = settings.scenario_frames + settings.random_frames + (64 if settings.include_corner_cases else 0)
+        longest = max(spec.frame_length, settings.random_length_max)
+        samples = ((settings.scenario_frames + (64 if settings.include_corner_cases else 0)) * spec.frame_length
+                   + settings.random_frames * (spec.window_length + settings.random_length_max) // 2)
     digits = {"frame": len(str(frames)), "index": len(str(longest)), "cut": len(str((1 << spec.input_bits) - 1)),
               "threshold": len(str((1 << spec.threshold_bits) - 1))}
     per_sample = 0

@@ -3,7 +3,8 @@
 // A wrapper whose every port name starts with an underscore (legal: IEEE Std 1364-2005, 3.7).
 module _wrap #(
     parameter integer INPUT_BITS = 16, parameter integer REF_CELLS = 16, parameter integer GUARD_CELLS = 2,
-    parameter integer KIND = 0, parameter integer EDGE = 0, parameter integer SUM_BITS = 20,
+    parameter integer KIND = 0, parameter integer OS_RANK = 1, parameter integer EDGE = 0,
+    parameter integer MAX_FRAME_LENGTH = 256, parameter integer SUM_BITS = 20,
     parameter [63:0] ALPHA_INT = 64'd2212, parameter integer DROP_BITS = 12,
     parameter integer THRESHOLD_FRAC_BITS = 0, parameter integer THRESHOLD_BITS = 21,
     parameter integer ROUNDING = 1, parameter integer OVERFLOW = 0, parameter integer COMPARE_GE = 0,
@@ -15,7 +16,7 @@ module _wrap #(
     output wire _dout_last
 );
     cfar_stream #(.INPUT_BITS(INPUT_BITS), .REF_CELLS(REF_CELLS), .GUARD_CELLS(GUARD_CELLS), .KIND(KIND),
-        .EDGE(EDGE), .SUM_BITS(SUM_BITS), .ALPHA_INT(ALPHA_INT), .DROP_BITS(DROP_BITS),
+        .OS_RANK(OS_RANK), .EDGE(EDGE), .MAX_FRAME_LENGTH(MAX_FRAME_LENGTH), .SUM_BITS(SUM_BITS), .ALPHA_INT(ALPHA_INT), .DROP_BITS(DROP_BITS),
         .THRESHOLD_FRAC_BITS(THRESHOLD_FRAC_BITS), .THRESHOLD_BITS(THRESHOLD_BITS), .ROUNDING(ROUNDING),
         .OVERFLOW(OVERFLOW), .COMPARE_GE(COMPARE_GE), .TRUNCATE_PARTIALS(TRUNCATE_PARTIALS),
         .PIPELINE_STAGES(PIPELINE_STAGES), .SRST_LEVEL(SRST_LEVEL))
