@@ -33,7 +33,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
         description=_DESCRIPTION, formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument("spec", metavar="SPEC", help="block spec TOML file")
-    p.add_argument("-o", "--out", required=True, metavar="DIR", help="report folder to create")
+    p.add_argument("-o", "--output", required=True, metavar="DIR", help="report folder to create")
     g = p.add_argument_group("sweep axes")
     g.add_argument("--input-bits", metavar="LIST", help="input word widths W_in")
     g.add_argument("--alpha-frac-bits", metavar="LIST", help="fraction bits of the constant A")
@@ -86,15 +86,14 @@ def run(args: argparse.Namespace) -> int:
     from refmodel.block_spec import load_spec
     from refmodel.errors import require
     from refmodel.study.quant_study import run_study, study_config
+    from refmodel.output_folder import check_safe_target, check_target
     from refmodel.study.study_report import write_report
 
     spec = load_spec(args.spec)
     cfg = study_config(spec, options_from_args(args))
-    out = Path(args.out)
-    # Refuse an occupied target before the (long) sweep, not after it.
-    require(not out.exists() or out.is_dir(), "-o", f"{str(out)!r} is a file", "a folder path")
-    require(args.force or not (out.exists() and any(out.iterdir())), "-o", f"{str(out)!r} is not empty",
-            "an empty or new folder, or --force")
+    # Refuse an unsafe or occupied target before the (long) sweep, not after it.
+    out = check_safe_target(args.output, "--output", protect=[args.spec])
+    check_target(out, args.force, "--output")
     require(args.workers is None or args.workers >= 1, "--workers", f"got {args.workers}", "an integer >= 1")
     result = run_study(spec, cfg, workers=args.workers, scheduler=args.scheduler, progress=not args.no_progress)
     write_report(result, out, force=args.force)

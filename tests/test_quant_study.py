@@ -363,3 +363,14 @@ def test_every_point_seed_is_distinct():
     b = np.random.default_rng(qs.point_seed(1, 1)).random(4)
     c = np.random.default_rng(qs.point_seed(1, 0)).random(4)
     assert not np.array_equal(a, b) and np.array_equal(a, c)
+
+
+@pytest.mark.parametrize("target", [".", ""])
+def test_cli_study_output_never_replaces_the_current_folder(tmp_path, capsys, monkeypatch, target):
+    """Issue 15 items 2 and 5: `study --output .` (or an empty path) with --force is refused, naming --output."""
+    spec = write_spec(tmp_path)
+    monkeypatch.chdir(tmp_path)
+    code, _, err = run_cli(["study", str(spec), "--output", target, "--force", "--no-progress", "--workers", "1"],
+                           capsys)
+    assert code == 2 and err.count("\n") == 1 and err.startswith("cfarvec study: error: --output")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["ca.toml"]

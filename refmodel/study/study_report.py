@@ -332,7 +332,7 @@ def write_report(result: StudyResult, out_dir: str | Path, force: bool = False) 
         For a non-empty target without ``force``, or a target that is a file.
     """
     target = Path(out_dir)
-    with staged_folder(target, force, field="-o") as tmp:
+    with staged_folder(target, force, field="--output") as tmp:
         ref = reference_row(result)
         _write_csv(result, tmp / "points.csv")
         _plot_loss(result, tmp / "loss_vs_width.png", ref)
