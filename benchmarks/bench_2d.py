@@ -12,7 +12,6 @@ The block specs are invented scenarios: a made-up marina radar's range-Doppler m
 
 from __future__ import annotations
 
-import json
 import os
 import subprocess
 import sys
@@ -25,6 +24,7 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
+from measure import best_of, emit  # noqa: E402
 from refmodel.block_spec import spec_from_dict  # noqa: E402
 from refmodel.fixedpoint.map_fast import map_words  # noqa: E402
 
@@ -45,20 +45,6 @@ t = time.perf_counter()
 m = write_vector_set(spec, sys.argv[1])
 print(m["totals"]["samples"], time.perf_counter() - t, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
 """
-
-
-def emit(metric, value, unit, target, better):
-    print(json.dumps({"metric": metric, "value": value, "unit": unit, "target": target, "better": better}),
-          flush=True)
-
-
-def best_of(fn, repeats=5):
-    times = []
-    for _ in range(repeats):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return min(times)
 
 
 def fast_ratio() -> float:

@@ -13,11 +13,12 @@ change on the machine hits every command alike.
 
 from __future__ import annotations
 
-import json
 import statistics
 import subprocess
 import sys
 import time
+
+from measure import emit
 
 RUNS = 9
 DESIGN = ["design", "--detector", "ca", "--ref-cells-total", "32", "--pfa", "1e-6"]
@@ -46,8 +47,7 @@ def main() -> None:
         ("cli_design_over_python_pass", med["design"] / med["pass"], 15),
         ("cli_design_over_eager_imports", med["design"] / med["design_eager"], 0.6),
     ):
-        print(json.dumps({"metric": metric, "value": round(value, 3), "unit": "ratio", "target": target,
-                          "better": "lower"}))
+        emit(metric, value, "ratio", target, "lower", digits=3)
 
 
 if __name__ == "__main__":

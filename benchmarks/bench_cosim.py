@@ -40,7 +40,7 @@ Output: JSON lines ``{"metric", "value", "unit", "target", "better"}``.
 
 from __future__ import annotations
 
-import json
+import functools
 import shutil
 import sys
 import tempfile
@@ -51,6 +51,9 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 import subprocess  # noqa: E402
 import time  # noqa: E402
 
+from measure import emit as _emit  # noqa: E402
+
+emit = functools.partial(_emit, digits=4)
 from hdl_tb.cosim import build_dir, run_folder  # noqa: E402
 from hdl_tb.simulators import find_simulator  # noqa: E402
 from hdl_tb.tb_generator import read_config  # noqa: E402
@@ -69,11 +72,6 @@ SPEC = {
 
 #: The OS core at R = 16: rank 24 of 2R = 32 (INVENTED SCENARIO, benchmark data).
 OS_SPEC = {**SPEC, "detector": {**SPEC["detector"], "kind": "os", "rank": 24, "alpha": 5.0}}
-
-
-def emit(metric: str, value: float, unit: str, target: float | None, better: str) -> None:
-    print(json.dumps({"metric": metric, "value": round(value, 4), "unit": unit, "target": target,
-                      "better": better}), flush=True)
 
 
 def main() -> int:

@@ -20,7 +20,6 @@ The block spec is an invented scenario: a made-up coastal radar's range line.
 
 from __future__ import annotations
 
-import json
 import os
 import subprocess
 import sys
@@ -32,6 +31,7 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
+from measure import emit  # noqa: E402
 from refmodel.block_spec import spec_from_dict  # noqa: E402
 from refmodel.fixedpoint.pipeline_fast import FastPipeline, run_fast  # noqa: E402
 
@@ -50,11 +50,6 @@ STRUCT_SAMPLES = 20_000
 MEMORY_SAMPLES = int(os.environ.get("CFARVEC_BENCH_SAMPLES", 100_000_000))
 CHUNK = 1_000_000
 REPEATS = 9
-
-
-def emit(metric, value, unit, target, better):
-    print(json.dumps({"metric": metric, "value": value, "unit": unit, "target": target, "better": better}),
-          flush=True)
 
 
 def stimulus(rng, n, frame, offset=0):

@@ -18,7 +18,6 @@ The block is an invented scenario: a made-up coastal radar's range line.
 
 from __future__ import annotations
 
-import json
 import sys
 import time
 from pathlib import Path
@@ -28,6 +27,7 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
+from measure import emit  # noqa: E402
 from refmodel.block_spec import spec_from_dict  # noqa: E402
 from refmodel.fixedpoint.exact_pfa import trigger_law  # noqa: E402
 from refmodel.study.window_trials import CHUNK_TRIALS, run_trials  # noqa: E402
@@ -39,11 +39,6 @@ SPEC = {
 NOISE_LSB = 256.0
 MC_TRIALS = 400_000
 REPEATS = 5
-
-
-def emit(metric, value, unit, target, better):
-    print(json.dumps({"metric": metric, "value": value, "unit": unit, "target": target, "better": better}),
-          flush=True)
 
 
 def main() -> None:

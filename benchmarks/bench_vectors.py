@@ -11,7 +11,6 @@ The block spec is an invented scenario: a made-up ridge-top radar's range line.
 
 from __future__ import annotations
 
-import json
 import os
 import subprocess
 import sys
@@ -24,6 +23,7 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
+from measure import best_of, emit  # noqa: E402
 from vectors.writers import VectorFileWriter  # noqa: E402
 
 WORDS = 2_000_000
@@ -46,20 +46,6 @@ t = time.perf_counter()
 m = write_vector_set(spec, sys.argv[1])
 print(m["totals"]["samples"], time.perf_counter() - t, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
 """ % FRAME
-
-
-def emit(metric, value, unit, target, better):
-    print(json.dumps({"metric": metric, "value": value, "unit": unit, "target": target, "better": better}),
-          flush=True)
-
-
-def best_of(fn, repeats=3):
-    times = []
-    for _ in range(repeats):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return min(times)
 
 
 def hex_speedup(tmp: Path) -> float:
