@@ -52,7 +52,7 @@ from vectors.writers import ParseError, parse_fixed
 from . import mismatch_report
 from .pause_pattern import write_pattern
 from .simulators import (DEFAULT_SIMULATOR, LABELS, build_verilog_bench, check_simulator, cocotb_build_args,
-                         find_simulator, first_error, simulator_environment, waves_name)
+                         cocotb_test_args, find_simulator, first_error, simulator_environment, waves_name)
 from .tb_generator import (COCOTB_MODULE, DEFAULT_GAP_PERCENT, DEFAULT_SINK, DEFAULT_STALL_PERCENT, MODES,
                            VERILOG_TOP, check_sink, read_config, read_stimulus, whole_frames, write_testbench)
 
@@ -345,6 +345,9 @@ def run_folder(folder: str | Path, mode: str = "bulk", *, samples: int | None = 
     check_simulator(simulator)
     folder = Path(folder).resolve()
     config = read_config(folder)
+    from .vhdl_bench import check_folder_run  # a VHDL folder runs on GHDL, a Verilog one on Icarus or Verilator
+
+    check_folder_run(config, mode, simulator)
     find_simulator(simulator)
     for copy, original in config.get("rtl_copies", {}).items():  # RTL a Makefile could not refer to
         if Path(original).is_file() and Path(original).read_bytes() != (folder / copy).read_bytes():
@@ -372,6 +375,10 @@ def run_folder(folder: str | Path, mode: str = "bulk", *, samples: int | None = 
     (where / RECEIVED_FILE).unlink(missing_ok=True)
     if mode == "verilog":
         result = _run_verilog(folder, config, where, words, settings, waves, simulator, stim_rel, exp_rel)
+    elif mode == "vhdl":
+        from .vhdl_bench import run_vhdl_bench
+
+        result = run_vhdl_bench(folder, config, where, words, settings, waves, simulator, stim_rel, exp_rel)
     else:
         result = _run_cocotb(folder, config, mode, where, words, settings, waves, simulator, stim_rel, exp_rel)
     report = None if result.passed else _report(folder, config, where, stim_rel, exp_rel, words, chosen)
@@ -416,7 +423,7 @@ def _run_cocotb(folder: Path, config: Mapping, mode: str, where: Path, words: in
         with contextlib.suppress(SystemExit):
             runner.test(test_module=COCOTB_MODULE, hdl_toplevel=m["toplevel"], testcase=m["testcase"],
                         build_dir=where, test_dir=where, results_xml=str(results), waves=waves, log_file=sim_log,
-                        seed=int(settings["seed"]))
+                        seed=int(settings["seed"]), test_args=cocotb_test_args(simulator))
         seconds = time.perf_counter() - t0
     wave_file = where / waves_name(simulator, m["toplevel"]) if waves else None
     if bench_summary.is_file():
@@ -628,7 +635,7 @@ def cosim(spec: BlockSpec, *, rtl: Sequence[str | Path] = (), top: str | None = 
     try:
         bench = write_testbench(spec, target, rtl=rtl, top=top, force=force, seed=seed, samples=samples,
                                 gap_percent=gap_percent, stall_percent=stall_percent, sink=sink,
-                                output_field="--keep")
+                                output_field="--keep", simulator=simulator)
         result = run_folder(target, mode, waves=waves, simulator=simulator, frames=chosen)
         keep = keep or (keep_on_failure and not result.passed)
         failing = (result.report or {}).get("failing_frames") if not result.passed else None
@@ -660,7 +667,7 @@ def format_summary(result: CosimResult) -> str:
     if result.sink:
         lines.append(f"  output sink      {result.sink}")
     stream_rate = result.words_expected / result.stream_seconds if result.stream_seconds > 0 else 0.0
-    if result.mode == "verilog":
+    if result.mode in ("verilog", "vhdl"):
         lines.append(f"  simulation       {result.sim_seconds:.2f} s, {result.samples_per_second:,.0f} samples/s")
     else:
         lines.append(f"  simulation       {result.stream_seconds:.2f} s streaming, {stream_rate:,.0f} samples/s; "

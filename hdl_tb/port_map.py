@@ -256,7 +256,16 @@ class PortMap:
         }
 
 
-def port_map_from_spec(spec: BlockSpec, *, top: str | None = None) -> PortMap:
+def _identifier_check(language: str):
+    """The name rule of the RTL's language: Verilog (here) or VHDL (:mod:`hdl_tb.vhdl_names`)."""
+    if language == "vhdl":
+        from .vhdl_names import check_identifier as vhdl_identifier
+
+        return vhdl_identifier
+    return check_identifier
+
+
+def port_map_from_spec(spec: BlockSpec, *, top: str | None = None, language: str = "verilog") -> PortMap:
     """Validate the spec's ``[ports]`` table and resolve its defaults.
 
     Parameters
@@ -278,6 +287,7 @@ def port_map_from_spec(spec: BlockSpec, *, top: str | None = None) -> PortMap:
         module name, ``reset_active`` other than ``"high"``/``"low"``,
         overlapping or out-of-range output fields, a bad parameter.
     """
+    check_identifier = _identifier_check(language)  # noqa: F811 (VHDL names for a VHDL entity)
     raw = spec.sections.get("ports", {})
     require(isinstance(raw, Mapping), "ports", f"got {type(raw).__name__}", "a table")
     unknown = sorted(set(raw) - set(_KEYS))
@@ -306,9 +316,10 @@ def port_map_from_spec(spec: BlockSpec, *, top: str | None = None) -> PortMap:
     for role, name in [("clock", clock), ("reset", reset), *signals.items()]:
         if name is None:
             continue
-        require(name not in seen, f"ports.{role}", f"got {name!r}, already the {seen.get(name)} port",
+        key = name.casefold() if language == "vhdl" else name  # VHDL names ignore case
+        require(key not in seen, f"ports.{role}", f"got {name!r}, already the {seen.get(key)} port",
                 "a different port for each role")
-        seen[name] = role
+        seen[key] = role
 
     core = raw.get("core_parameters", module == REFERENCE_MODULE)
     require(isinstance(core, bool), "ports.core_parameters", f"got {core!r}", "true or false")

@@ -41,17 +41,17 @@ from typing import Iterator, Mapping, Sequence
 from refmodel.errors import SpecError, require
 
 #: Simulator names, as ``--simulator`` takes them.
-SIMULATORS = ("icarus", "verilator")
+SIMULATORS = ("icarus", "verilator", "ghdl")  # ghdl: VHDL RTL (hdl_tb.ghdl, hdl_tb.vhdl_bench)
 DEFAULT_SIMULATOR = "icarus"
 #: Names for summaries.
-LABELS = {"icarus": "Icarus Verilog", "verilator": "Verilator"}
+LABELS = {"icarus": "Icarus Verilog", "verilator": "Verilator", "ghdl": "GHDL"}
 #: Flags of every Verilator build (timing for the benches' delays; g++ 12 needs C++20 coroutines spelled out;
 #: the lint warnings of the benches and of the user's RTL are not errors, but an elaboration-time $fatal,
 #: the cores' parameter check, is).
 VERILATOR_FLAGS = ("--timing", "-CFLAGS", "-std=c++20 -fcoroutines", "-Wno-fatal", "-Werror-USERFATAL",
                    "-Wno-lint", "-Wno-style")
 _PARAM_ERROR = re.compile(r"(\w+)_PARAMETER_ERROR__(\w+)")
-_ERROR_LINE = re.compile(r"(?i)%error|\berror\b|syntax error|I give up")
+_ERROR_LINE = re.compile(r"(?i)%error|\berror\b|syntax error|I give up|\.vhdl?:\d+:\d+:(?!warning)")
 
 
 def check_simulator(name) -> str:
@@ -101,7 +101,11 @@ def verilator_root() -> Path:
 def find_simulator(name: str) -> None:
     """Check that simulator ``name`` is installed (SpecError ``simulator`` when not)."""
     check_simulator(name)
-    if name == "icarus":
+    if name == "ghdl":
+        from .ghdl import ghdl_tool
+
+        ghdl_tool()
+    elif name == "icarus":
         icarus_tools()
     else:
         verilator_root()
@@ -216,9 +220,18 @@ def build_verilog_bench(simulator: str, *, sources: Sequence[str], parameters: M
 
 def cocotb_build_args(simulator: str) -> list[str]:
     """Extra ``build_args`` of the cocotb runner for ``simulator``."""
+    if simulator == "ghdl":
+        return ["--std=08"]
     return list(VERILATOR_FLAGS) if simulator == "verilator" else []
 
 
+def cocotb_test_args(simulator: str) -> list[str]:
+    """Extra ``test_args`` of the cocotb runner for ``simulator`` (GHDL runs VHDL-2008 designs)."""
+    return ["--std=08"] if simulator == "ghdl" else []
+
+
 def waves_name(simulator: str, toplevel: str) -> str:
-    """The waveform file the cocotb runner leaves in its folder: FST (Icarus) or VCD (Verilator)."""
+    """The waveform file the cocotb runner leaves in its folder: FST (Icarus), GHW (GHDL) or VCD (Verilator)."""
+    if simulator == "ghdl":
+        return f"{toplevel}.ghw"
     return f"{toplevel}.fst" if simulator == "icarus" else "dump.vcd"

@@ -70,7 +70,7 @@ PYTEST_FILE = "test_cfarvec_cosim.py"
 ADAPTER_TOP = "cfarvec_port_adapter"
 BULK_TOP = "cfarvec_bulk_top"
 VERILOG_TOP = "cfar_stream_tb"
-MODES = ("bulk", "interactive", "verilog")
+MODES = ("bulk", "interactive", "verilog", "vhdl")  # vhdl: the pure-VHDL bench (hdl_tb.vhdl_bench)
 DEFAULT_GAP_PERCENT = 20
 DEFAULT_STALL_PERCENT = 30
 #: Output sinks: TREADY drawn every cycle without looking at TVALID, or raised only for a word seen waiting
@@ -384,6 +384,12 @@ def write_testbench(spec: BlockSpec, output: str | Path, *, rtl: Sequence[str | 
         lacks (see :func:`hdl_tb.port_map.check_against_rtl`). Nothing is
         written then.
     """
+    from .vhdl_bench import wants_vhdl_folder, write_vhdl_testbench
+
+    if wants_vhdl_folder(rtl, simulator):  # VHDL RTL: the VHDL benches, on GHDL
+        return write_vhdl_testbench(spec, output, rtl=rtl, top=top, force=force, seed=seed, samples=samples,
+                                    gap_percent=gap_percent, stall_percent=stall_percent, sink=sink,
+                                    check_ports=check_ports, simulator=simulator, output_field=output_field)
     pm = port_map_from_spec(spec, top=top)
     rtl_files = resolve_rtl(rtl)
     reference = not rtl_files
