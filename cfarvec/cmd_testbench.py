@@ -63,8 +63,12 @@ def run(args: argparse.Namespace) -> int:
     c = bench.config
     print(f"wrote {args.output}: {c['port_map']['module']}, {c['words']} of {c['total_words']} samples, "
           f"{c['gap_percent']}% gaps, {c['stall_percent']}% stalls, seed {c['seed']}")
+    vhdl = c.get("language") == "vhdl"
     if not bench.ports_checked:
-        print("note: iverilog not found, the port map was not checked against the RTL")
-    print(f"run: make -C {args.output} verilog | bulk | interactive [SIMULATOR=icarus|verilator]   "
-          f"(or python -m pytest in {args.output})")
+        print(f"note: {'ghdl' if vhdl else 'iverilog'} not found, the port map was not checked against the RTL")
+    if vhdl:
+        print(f"run: make -C {args.output} vhdl | bulk | interactive   (or python -m pytest in {args.output})")
+    else:
+        print(f"run: make -C {args.output} verilog | bulk | interactive [SIMULATOR=icarus|verilator]   "
+              f"(or python -m pytest in {args.output})")
     return 0

@@ -6,7 +6,8 @@
 --
 -- Arithmetic: docs/bit-true.md sections 2 to 8 for kind "ca" with the
 -- "skip" or "zero-pad" edge policy: S = S_lag + S_lead over a window held
--- whole in a shift register, P = S * A, T0 = P >> d (floor) or
+-- whole in a shift register, in VHDL integers (so S * A must stay below
+-- 2^30; refused at elaboration otherwise), P = S * A, T0 = P >> d (floor) or
 -- (P + 2^(d-1)) >> d (half-up), T saturated or wrapped to G_TBITS bits,
 -- det = (x << F_T) > T (or >=), T and det forced to 0 where the window is
 -- not valid under "skip". Timing: docs/bit-true.md section 9 (a drain of
@@ -63,23 +64,22 @@ architecture whole_window of ca_line_cfar is
     -- Half window H and window length W.
     constant H : natural := G_REF + G_GUARD;
     constant W : natural := 2 * H + 1;
-    -- Width of the statistic S and of the product S * A.
-    constant S_BITS : natural := G_SUM_BITS + 1;
-    constant A_BITS : natural := 31;
-    constant P_BITS : natural := S_BITS + A_BITS;
+    -- The largest sample, statistic and threshold (this core computes in VHDL integers, so the
+    -- product S * A must stay below 2^31: checked below).
+    constant X_MAX : natural := 2 ** G_INPUT_BITS - 1;
+    constant S_MAX : natural := 2 * G_REF * X_MAX;
+    constant T_MAX : natural := 2 ** G_TBITS - 1;
 
     -- One window cell: the sample, whether it is a sample of a frame (not a drain
     -- or reset zero), and whether it carried the last marker.
     type cell_t is record
-        value : unsigned(G_INPUT_BITS - 1 downto 0);
+        value : natural range 0 to X_MAX;
         real  : boolean;
         last  : boolean;
     end record;
     -- Index 0 is the newest cell (the leading end); the CUT sits at index H.
     type window_t is array (0 to W - 1) of cell_t;
-    constant EMPTY : cell_t := (value => (others => '0'), real => false, last => false);
-    -- The largest threshold of G_TBITS bits.
-    constant T_MAX : unsigned(P_BITS - 1 downto 0) := resize(unsigned'((G_TBITS - 1 downto 0 => '1')), P_BITS);
+    constant EMPTY : cell_t := (value => 0, real => false, last => false);
 
     -- A flag as a one-bit vector.
     function flag(b : boolean) return std_logic_vector is
@@ -90,114 +90,101 @@ architecture whole_window of ca_line_cfar is
         return "0";
     end function;
 
-    signal win       : window_t := (others => EMPTY);
     signal drain     : natural range 0 to H := 0;
-    signal cut_count : natural := 0;
     signal out_word  : std_logic_vector(G_INPUT_BITS + G_TBITS + 2 downto 0) := (others => '0');
     signal out_valid : std_logic := '0';
     signal step_ok   : std_logic;
 begin
     assert G_EDGE <= 1 report "ca_line_cfar: only the skip (0) and zero-pad (1) edge policies" severity failure;
     assert G_ROUNDING <= 1 report "ca_line_cfar: only floor (0) and half-up (1) rounding" severity failure;
+    assert G_TBITS <= 30 and G_TFRAC + G_INPUT_BITS <= 30 and S_MAX <= (2 ** 30) / G_ALPHA
+        report "ca_line_cfar: the product S * A must stay below 2^30 (integer arithmetic)" severity failure;
 
     -- The window moves when the output register is free or being emptied.
-    step_ok   <= '1' when out_valid = '0' or Dout_Ready = '1' else '0';
-    Din_Ready <= '1' when step_ok = '1' and drain = 0 else '0';
+    step_ok    <= '1' when out_valid = '0' or Dout_Ready = '1' else '0';
+    Din_Ready  <= '1' when step_ok = '1' and drain = 0 else '0';
     Dout       <= out_word;
     Dout_Valid <= out_valid;
 
+    -- The window and the CUT's sample index are registers kept in process variables.
     process (Clock)
-        variable next_win : window_t;
-        variable moved    : boolean;
-        variable lag_sum  : unsigned(S_BITS - 1 downto 0);
-        variable lead_sum : unsigned(S_BITS - 1 downto 0);
-        variable stat     : unsigned(S_BITS - 1 downto 0);
-        variable product  : unsigned(P_BITS - 1 downto 0);
-        variable rounded  : unsigned(P_BITS - 1 downto 0);
-        variable t_full   : unsigned(P_BITS - 1 downto 0);
-        variable t_out    : unsigned(G_TBITS - 1 downto 0);
-        variable cut_al   : unsigned(P_BITS - 1 downto 0);
-        variable n        : natural;
-        variable lag_ok   : boolean;
-        variable lead_ok  : boolean;
-        variable det      : boolean;
-        variable cut      : cell_t;
+        variable win       : window_t := (others => EMPTY);
+        variable cut_count : natural := 0;
+        variable moved     : boolean;
+        variable stat      : natural;
+        variable t_full    : natural;
+        variable t_out     : natural;
+        variable n         : natural;
+        variable lag_ok    : boolean;
+        variable lead_ok   : boolean;
+        variable det       : boolean;
+        variable cut       : cell_t;
     begin
         if rising_edge(Clock) then
             if Reset_N = '0' then
-                win       <= (others => EMPTY);
+                win       := (others => EMPTY);
                 drain     <= 0;
-                cut_count <= 0;
+                cut_count := 0;
                 out_valid <= '0';
                 out_word  <= (others => '0');
             elsif step_ok = '1' then
                 moved := false;
-                next_win(1 to W - 1) := win(0 to W - 2);
                 if drain > 0 then
-                    next_win(0) := EMPTY;
+                    win := EMPTY & win(0 to W - 2);
                     drain <= drain - 1;
                     moved := true;
                 elsif Din_Valid = '1' then
-                    next_win(0) := (value => unsigned(Din), real => true, last => Din_Last = '1');
+                    win := cell_t'(value => to_integer(unsigned(Din)), real => true, last => Din_Last = '1')
+                           & win(0 to W - 2);
                     if Din_Last = '1' then
                         drain <= H;
                     end if;
                     moved := true;
                 end if;
 
-                if not moved then
+                cut := win(H);
+                if not moved or not cut.real then
                     out_valid <= '0';
                 else
-                    win <= next_win;
-                    cut := next_win(H);
-                    if not cut.real then
-                        out_valid <= '0';
+                    stat := 0;
+                    for k in 0 to G_REF - 1 loop
+                        stat := stat + win(k).value + win(W - 1 - k).value;
+                    end loop;
+                    if G_ROUNDING = 1 and G_DROP > 0 then
+                        t_full := (stat * G_ALPHA + 2 ** (G_DROP - 1)) / 2 ** G_DROP;
                     else
-                        lag_sum  := (others => '0');
-                        lead_sum := (others => '0');
-                        for k in 0 to G_REF - 1 loop
-                            lead_sum := lead_sum + next_win(k).value;
-                            lag_sum  := lag_sum + next_win(W - 1 - k).value;
-                        end loop;
-                        stat    := lag_sum + lead_sum;
-                        product := resize(stat * to_unsigned(G_ALPHA, A_BITS), P_BITS);
-                        if G_ROUNDING = 1 and G_DROP > 0 then
-                            rounded := product + shift_left(to_unsigned(1, P_BITS), G_DROP - 1);
-                        else
-                            rounded := product;
+                        t_full := (stat * G_ALPHA) / 2 ** G_DROP;
+                    end if;
+                    if G_WRAP = 1 then
+                        t_out := t_full mod (T_MAX + 1);
+                    else
+                        t_out := minimum(t_full, T_MAX);
+                    end if;
+                    n := cut_count;
+                    lag_ok := n >= H;
+                    lead_ok := true;
+                    for k in 1 to H loop
+                        if win(k).last then
+                            lead_ok := false;
                         end if;
-                        t_full := shift_right(rounded, G_DROP);
-                        if G_WRAP = 0 and t_full > T_MAX then
-                            t_out := (others => '1');
-                        else
-                            t_out := t_full(G_TBITS - 1 downto 0);
-                        end if;
-                        n := cut_count;
-                        lag_ok := n >= H;
-                        lead_ok := true;
-                        for k in 1 to H loop
-                            if next_win(k).last then
-                                lead_ok := false;
-                            end if;
-                        end loop;
-                        cut_al := shift_left(resize(cut.value, P_BITS), G_TFRAC);
-                        if G_COMPARE_GE = 1 then
-                            det := cut_al >= resize(t_out, P_BITS);
-                        else
-                            det := cut_al > resize(t_out, P_BITS);
-                        end if;
-                        if G_EDGE = 0 and not (lag_ok and lead_ok) then
-                            t_out := (others => '0');
-                            det := false;
-                        end if;
-                        out_word <= std_logic_vector(cut.value) & std_logic_vector(t_out) & flag(det)
-                                    & flag(lag_ok and lead_ok) & flag(cut.last);
-                        out_valid <= '1';
-                        if cut.last then
-                            cut_count <= 0;
-                        else
-                            cut_count <= n + 1;
-                        end if;
+                    end loop;
+                    if G_COMPARE_GE = 1 then
+                        det := cut.value * 2 ** G_TFRAC >= t_out;
+                    else
+                        det := cut.value * 2 ** G_TFRAC > t_out;
+                    end if;
+                    if G_EDGE = 0 and not (lag_ok and lead_ok) then
+                        t_out := 0;
+                        det := false;
+                    end if;
+                    out_word <= std_logic_vector(to_unsigned(cut.value, G_INPUT_BITS))
+                                & std_logic_vector(to_unsigned(t_out, G_TBITS)) & flag(det)
+                                & flag(lag_ok and lead_ok) & flag(cut.last);
+                    out_valid <= '1';
+                    if cut.last then
+                        cut_count := 0;
+                    else
+                        cut_count := n + 1;
                     end if;
                 end if;
             end if;
