@@ -102,3 +102,15 @@ def test_the_folder_runs_the_pure_vhdl_bench_with_make_alone(spec, tmp_path):
     proc = subprocess.run(["make", "-s", "vhdl"], cwd=folder, capture_output=True, text=True, timeout=600)
     assert proc.returncode == 0, proc.stdout + proc.stderr
     assert f"PASS {bench.config['words']}" in proc.stdout
+
+
+def test_a_regression_runs_the_vhdl_modes_on_ghdl(tmp_path, capsys):
+    import xml.etree.ElementTree as ET
+
+    out = tmp_path / "reg"
+    code = cli.main(["regression", str(SPEC), "--rtl", str(CORE), "--simulators", "ghdl", "--modes",
+                     "bulk,vhdl", "--seeds", "1,2", "--samples", "800", "-o", str(out)])
+    text = capsys.readouterr().out
+    assert code == 0, text
+    names = sorted(c.get("name") for c in ET.parse(out / "junit.xml").getroot().iter("testcase"))
+    assert names == ["bulk[ghdl,seed=1]", "bulk[ghdl,seed=2]", "vhdl[ghdl,seed=1]", "vhdl[ghdl,seed=2]"]
