@@ -30,7 +30,9 @@ off by one cell, rounding at ties, saturation boundary, > vs >=) that explain
 the received words, and a command that reruns just the failing frames; its
 folder is kept. Modes: bulk (cocotb, a Verilog driver streams the vector file; the
 fastest), interactive (cocotb, Python feeds frame batches and checks each output frame),
-verilog (the pure-Verilog self-checking bench, no Python). --sink
+verilog (the pure-Verilog self-checking bench, no Python). VHDL-2008 RTL
+(--rtl *.vhd) runs on GHDL (--simulator ghdl) in the modes bulk, interactive
+and vhdl (the pure-VHDL self-checking bench). --sink
 waits-for-valid makes the output sink raise TREADY only after it has seen
 TVALID high (ARM IHI 0051A 2.2.1 allows a sink to wait), so a module whose
 TVALID waits for TREADY deadlocks and fails. Exit status 0: pass; 1:

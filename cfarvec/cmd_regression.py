@@ -36,8 +36,8 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     p.add_argument("specs", nargs="*", metavar="SPEC", help="block specs (TOML)")
     p.add_argument("--plan", metavar="FILE", help="a TOML plan: specs, seeds, simulators, modes, samples, ...")
     p.add_argument("--seeds", metavar="LIST", help="seeds, e.g. 1,2,3 or 1:3 (default 1)")
-    p.add_argument("--simulators", metavar="LIST", help=f"icarus and/or verilator (default {DEFAULT_SIMULATOR})")
-    p.add_argument("--modes", metavar="LIST", help="bulk, interactive and/or verilog (default bulk)")
+    p.add_argument("--simulators", metavar="LIST", help=f"icarus, verilator and/or ghdl (VHDL RTL) (default {DEFAULT_SIMULATOR})")
+    p.add_argument("--modes", metavar="LIST", help="bulk, interactive, verilog and/or vhdl (VHDL RTL) (default bulk)")
     p.add_argument("--samples", type=int, metavar="N", help="samples per run, rounded up to whole frames")
     p.add_argument("--gaps", type=int, metavar="PCT", help=f"input gaps, percent (default {DEFAULT_GAP_PERCENT})")
     p.add_argument("--stalls", type=int, metavar="PCT",

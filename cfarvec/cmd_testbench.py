@@ -23,6 +23,8 @@ driver and checks each output frame as it arrives), its pytest runner, the pure-
 self-checking testbench with a Makefile, and a README. The [ports] table of
 SPEC maps the benches onto your module's port names, reset level and output
 word layout; it is checked against the RTL with Icarus Verilog when present.
+For VHDL-2008 RTL (--rtl *.vhd, --simulator ghdl) the folder holds a
+VHDL-2008 driver and a pure-VHDL bench instead, and GHDL checks the map.
 DIR is written beside itself and renamed into place only when complete."""
 
 
