@@ -117,15 +117,16 @@ def check_against_vhdl(port_map: PortMap, rtl_files: Sequence[str | Path], *, pa
                             "the name of the top entity of the --rtl files")
         if line in fields:
             field = fields[line]
-            if field.startswith("ports.parameters.") or field == "ports.core_parameters":
-                name = field.rsplit(".", 1)[1] if field.startswith("ports.parameters.") else message
-                what = ("has no generic " + repr(name)) if "no declaration" in message else f"refuses it: {message}"
-                if field == "ports.core_parameters":
-                    generic = _QUOTED.search(message)
-                    raise SpecError(field, f"true, but entity {port_map.module!r} "
-                                    + (f"has no generic {generic.group(1)!r}" if generic and "no declaration"
-                                       in message else f"refuses the reference core's generics: {message}"),
-                                    "false for an entity without the reference core's generics")
+            if field == "ports.core_parameters":
+                generic = _QUOTED.search(message)
+                lacks = "no declaration" in message and generic is not None
+                raise SpecError(field, f"true, but entity {port_map.module!r} "
+                                + (f"has no generic {generic.group(1)!r}" if lacks
+                                   else f"refuses the reference core's generics: {message}"),
+                                "false for an entity without the reference core's generics")
+            if field.startswith("ports.parameters."):
+                name = field.rsplit(".", 1)[1]
+                what = f"has no generic {name!r}" if "no declaration" in message else f"refuses it: {message}"
                 raise SpecError(field, f"entity {port_map.module!r} {what}", "a generic the entity declares")
             role = field.split(".", 1)[1]
             name = role_of[role]

@@ -147,3 +147,16 @@ def test_the_pure_verilog_bench_is_refused_for_vhdl_rtl(tmp_path, capsys):
     code = cli.main(["cosim", str(spec), "--rtl", str(CORE), *GHDL, "--mode", "verilog"])
     err = one_line(code, capsys.readouterr().err.strip(), "--mode")
     assert "vhdl" in err
+
+
+@needs_ghdl
+def test_first_error_of_a_ghdl_log_is_its_first_located_message(tmp_path):
+    # GHDL prints "file:line:column: message" with no "error" word (a direct run of ghdl on a broken file).
+    from hdl_tb import ghdl
+    from hdl_tb.simulators import first_error
+
+    bad = tmp_path / "broken.vhd"
+    bad.write_text("entity broken is\n    port (x : in bit\nend entity;\n")
+    log = ghdl.analyse([bad.name], "broken", cwd=tmp_path, workdir="work").stdout
+    assert "broken.vhd:3:" in first_error(log) or "broken.vhd:2:" in first_error(log)
+    assert ghdl.first_error(log).startswith("broken.vhd:")
