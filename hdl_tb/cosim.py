@@ -623,6 +623,9 @@ def cosim(spec: BlockSpec, *, rtl: Sequence[str | Path] = (), top: str | None = 
     """
     require(mode in MODES, "--mode", f"got {mode!r}", ", ".join(MODES))
     check_simulator(simulator)
+    from .vhdl_bench import check_folder_run, rtl_language  # mode and simulator fit the RTL's language
+
+    check_folder_run({"language": rtl_language(rtl)}, mode, simulator)
     find_simulator(simulator)
     chosen = parse_frames(frames) if frames is not None else None
     keep = folder is not None or waves

@@ -97,6 +97,11 @@ def wants_vhdl_folder(rtl: Sequence[str | Path], simulator: str) -> bool:
     return True
 
 
+def rtl_language(rtl: Sequence[str | Path]) -> str:
+    """``"vhdl"`` when any ``--rtl`` file is VHDL, else ``"verilog"`` (no files: the reference core)."""
+    return "vhdl" if any(is_vhdl_file(f) for f in rtl) else "verilog"
+
+
 def check_folder_run(config: Mapping, mode: str, simulator: str) -> None:
     """Refuse a mode or simulator that does not fit the folder's language (``--mode``, ``--simulator``)."""
     if config.get("language") == "vhdl":

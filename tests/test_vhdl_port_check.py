@@ -160,3 +160,17 @@ def test_first_error_of_a_ghdl_log_is_its_first_located_message(tmp_path):
     log = ghdl.analyse([bad.name], "broken", cwd=tmp_path, workdir="work").stdout
     assert "broken.vhd:3:" in first_error(log) or "broken.vhd:2:" in first_error(log)
     assert ghdl.first_error(log).startswith("broken.vhd:")
+
+
+def test_a_mode_of_the_other_language_is_refused_before_anything_is_written(tmp_path, capsys):
+    spec = tmp_path / "spec.toml"
+    spec.write_text(BASE)
+    keep = tmp_path / "kept"
+    code = cli.main(["cosim", str(spec), "--rtl", str(CORE), *GHDL, "--mode", "verilog", "--keep", str(keep)])
+    one_line(code, capsys.readouterr().err.strip(), "--mode")
+    assert not keep.exists()
+    small = tmp_path / "small.toml"
+    small.write_text((ROOT / "tests" / "data" / "vectors_small.toml").read_text())
+    code = cli.main(["cosim", str(small), "--mode", "vhdl", "--keep", str(keep)])
+    one_line(code, capsys.readouterr().err.strip(), "--mode")
+    assert not keep.exists()
