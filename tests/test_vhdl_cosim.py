@@ -114,3 +114,20 @@ def test_a_regression_runs_the_vhdl_modes_on_ghdl(tmp_path, capsys):
     assert code == 0, text
     names = sorted(c.get("name") for c in ET.parse(out / "junit.xml").getroot().iter("testcase"))
     assert names == ["bulk[ghdl,seed=1]", "bulk[ghdl,seed=2]", "vhdl[ghdl,seed=1]", "vhdl[ghdl,seed=2]"]
+
+
+@pytest.mark.parametrize("mode", ["vhdl", "interactive"])
+def test_words_whose_width_is_not_a_multiple_of_four(tmp_path, mode):
+    # 11-bit samples: the output word is not a whole number of hex digits, so the driver's hex reads and
+    # writes pad it (IEEE Std 1076-2008, 16.4 HREAD/HWRITE via to_hstring); the interactive reader expects
+    # lines of exactly ceil(bits / 4) digits.
+    text = SPEC.read_text().replace("input_bits = 12", "input_bits = 11")
+    draft = tmp_path / "draft.toml"
+    draft.write_text(text.replace("cut = 20", "cut = 40"))
+    t_bits = load_spec(draft).threshold_bits
+    spec_file = tmp_path / "spec.toml"
+    spec_file.write_text(text.replace("cut = 20", f"cut = {3 + t_bits}"))
+    spec = load_spec(spec_file)
+    assert spec.output_bits % 4 != 0
+    result = cosim(spec, rtl=[CORE], mode=mode, simulator="ghdl", samples=SAMPLES)
+    assert result.passed, (result.problems, result.first_mismatch)
