@@ -89,7 +89,7 @@ def test_a_seeded_bug_fails_the_cocotb_bench_with_the_mismatch_report(tmp_path, 
     assert "--simulator ghdl" in out
 
 
-def test_the_folder_runs_the_pure_vhdl_bench_with_make_alone(spec, tmp_path):
+def test_the_folder_runs_its_benches_with_make(spec, tmp_path):
     if shutil.which("make") is None:
         pytest.skip("needs make")
     from hdl_tb.tb_generator import write_testbench
@@ -102,6 +102,10 @@ def test_the_folder_runs_the_pure_vhdl_bench_with_make_alone(spec, tmp_path):
     proc = subprocess.run(["make", "-s", "vhdl"], cwd=folder, capture_output=True, text=True, timeout=600)
     assert proc.returncode == 0, proc.stdout + proc.stderr
     assert f"PASS {bench.config['words']}" in proc.stdout
+    # The folder's own pytest runner (cocotb_tools.runner for GHDL), as `make bulk` starts it.
+    proc = subprocess.run(["make", "-s", "bulk"], cwd=folder, capture_output=True, text=True, timeout=600)
+    assert proc.returncode == 0, proc.stdout + proc.stderr
+    assert "1 passed" in proc.stdout
 
 
 def test_a_regression_runs_the_vhdl_modes_on_ghdl(tmp_path, capsys):
