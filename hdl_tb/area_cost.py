@@ -237,5 +237,5 @@ class AreaCoster:
 
     def describe(self) -> dict:
         """Flow, weights and cache folder, for reports."""
-        return {"flow": self.flow, "flow_command": FLOWS[self.flow], "weights": dict(self.weights),
+        return {"flow": self.flow, "flow_command": FLOWS[self.flow].format(top=self.top), "weights": dict(self.weights),
                 "cache_dir": str(self.cache_dir), "yosys": self._version}
