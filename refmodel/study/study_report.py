@@ -337,7 +337,7 @@ def _num(v, fmt=".3g") -> str:
     return format(v, fmt)
 
 
-_OUTPUT_SKIP = ("alpha_int", "alpha_int_rounded", "retune_met")
+_OUTPUT_SKIP = ("alpha_int", "alpha_int_rounded", "retune_met", "threshold_bits_used", "sum_bits_used")
 
 
 def _output_columns(result: StudyResult) -> list[str]:
