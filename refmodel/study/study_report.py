@@ -137,13 +137,13 @@ def _finite(values) -> np.ndarray:
     return a
 
 
-def _panels(n: int):
+def _panels(n: int, width: float = 5.0):
     import matplotlib
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    fig, axs = plt.subplots(1, max(n, 1), figsize=(5.0 * max(n, 1), 5.6), squeeze=False)
+    fig, axs = plt.subplots(1, max(n, 1), figsize=(max(width * max(n, 1), 8.5), 5.6), squeeze=False)
     return plt, fig, axs[0]
 
 
@@ -288,6 +288,13 @@ def _plot_pareto(result: StudyResult, path: Path) -> None:
     if loose:
         ax.scatter([_cost(r) for r in loose], [_worst_loss(r, cfg) for r in loose], s=18, color="tab:blue",
                    label="Pfa within budget")
+    else:  # no point keeps its Pfa: show the front of all points, said so in the legend
+        finite = [r for r in result.rows if math.isfinite(_worst_loss(r, cfg))]
+        ids = set(pareto_front([(_cost(r), _worst_loss(r, cfg), r["index"]) for r in finite]))
+        allf = sorted((r for r in finite if r["index"] in ids), key=lambda r: (_cost(r), r["index"]))
+        if allf:
+            ax.plot([_cost(r) for r in allf], [_worst_loss(r, cfg) for r in allf], marker="o", color="0.4",
+                    drawstyle="steps-post", label="Pareto front of all points (none keeps its Pfa in budget)")
     if front:
         ax.plot([_cost(r) for r in front], [_worst_loss(r, cfg) for r in front], marker="o", color="tab:red",
                 drawstyle="steps-post", label="Pareto front (Pfa within budget)")
