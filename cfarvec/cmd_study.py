@@ -48,6 +48,8 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                    help="threshold widths W_T (0 = automatic, the width that never saturates)")
     g.add_argument("--sum-bits", metavar="LIST", help="side-sum widths W_S (0 = automatic, the smallest lossless)")
     g.add_argument("--rounding", metavar="LIST", help="rounding modes: floor, half-up, half-even")
+    g.add_argument("--input-converter", metavar="LIST",
+                   help="how the analogue power becomes a word: floor (default), round (to nearest)")
     g.add_argument("--constant", metavar="LIST",
                    help="rounded (A = alpha rounded), retuned (A chosen on the exact Pfa); default both")
     g.add_argument("--retune", choices=("closest-not-above", "closest"), default=None,
@@ -95,6 +97,7 @@ def options_from_args(args: argparse.Namespace) -> dict:
         "input_bits": args.input_bits, "alpha_frac_bits": args.alpha_frac_bits,
         "alpha_csd_digits": args.alpha_csd_digits, "threshold_frac_bits": args.threshold_frac_bits,
         "threshold_bits": args.threshold_bits, "sum_bits": args.sum_bits, "constant": args.constant,
+        "input_converter": args.input_converter,
         "retune": args.retune, "noise_range_lsb": args.noise_range, "noise_range_points": args.noise_range_points,
         "rounding": args.rounding, "noise_level_lsb": args.noise_lsb, "noise_scaling": args.noise_scaling,
         "snr_db": args.snr_db, "pd": args.pd, "swerling": args.swerling, "mc_trials": args.mc_trials,

@@ -14,6 +14,8 @@ axis                     meaning
 ``threshold_bits``       threshold width ``W_T`` (0: the automatic width, which never saturates)
 ``sum_bits``             side-sum width ``W_S`` (0: the automatic, smallest lossless width)
 ``rounding``             product rounding mode
+``input_converter``      ``floor`` or ``round`` (to nearest): how the analogue power becomes a word
+                         (:mod:`refmodel.fixedpoint.input_quantiser`)
 ``constant``             ``rounded`` (A = alpha rounded) or ``retuned`` (A chosen on the exact Pfa,
                          :mod:`refmodel.study.retune`)
 ``noise_level_lsb``      mean noise power in LSBs of the spec's input word
@@ -86,7 +88,7 @@ from ..errors import SpecError, require
 from ..spec_fields import choice, choice_list, integer, integer_list, number, number_list
 from ..fixedpoint.exact_pfa import trigger_law
 from ..fixedpoint.fixed_arith import ROUNDING_MODES
-from ..fixedpoint.input_quantiser import clip_rate
+from ..fixedpoint.input_quantiser import CONVERTERS, clip_rate
 from .retune import RETUNE_MODES, retune_constant, spec_with_constant
 from .window_trials import clopper_pearson, run_trials
 
@@ -104,7 +106,7 @@ __all__ = [
 
 #: Sweep axes, in grid order.
 AXES = ("input_bits", "alpha_frac_bits", "alpha_csd_digits", "threshold_frac_bits", "threshold_bits", "sum_bits",
-        "rounding", "constant", "noise_level_lsb")
+        "rounding", "input_converter", "constant", "noise_level_lsb")
 #: Axes that are fields of the spec's [fixed] section.
 FIXED_AXES = ("input_bits", "alpha_frac_bits", "alpha_csd_digits", "threshold_frac_bits", "threshold_bits",
               "sum_bits", "rounding")
@@ -121,6 +123,7 @@ OPTIONS = {
     "threshold_bits": "--threshold-bits",
     "sum_bits": "--sum-bits",
     "rounding": "--rounding",
+    "input_converter": "--input-converter",
     "constant": "--constant",
     "retune": "--retune",
     "noise_level_lsb": "--noise-lsb",
@@ -287,7 +290,8 @@ def study_config(spec: BlockSpec, options: Mapping[str, Any] | None = None) -> S
         "alpha_csd_digits": spec.alpha_csd_digits, "threshold_frac_bits": spec.threshold_frac_bits,
         "threshold_bits": 0 if "threshold_bits" not in _base_data(spec)["fixed"] else spec.threshold_bits,
         "sum_bits": 0 if "sum_bits" not in _base_data(spec)["fixed"] else spec.sum_bits,
-        "rounding": spec.rounding, "constant": "rounded", "noise_level_lsb": _default_noise(spec),
+        "rounding": spec.rounding, "input_converter": "floor", "constant": "rounded",
+        "noise_level_lsb": _default_noise(spec),
     }
     axes = {}
     for name in AXES:
@@ -299,6 +303,8 @@ def study_config(spec: BlockSpec, options: Mapping[str, Any] | None = None) -> S
             axes[name] = choice_list(fields[name], values[name], ROUNDING_MODES)
         elif name == "constant":
             axes[name] = choice_list(fields[name], values[name], CONSTANTS)
+        elif name == "input_converter":
+            axes[name] = choice_list(fields[name], values[name], tuple(CONVERTERS))
         else:
             axes[name] = number_list(fields[name], values[name], 0.0, open_lo=True)
     n_points = math.prod(len(v) for v in axes.values())
@@ -482,9 +488,10 @@ def evaluate_point(task: dict) -> dict:
     design = cfg["design_pfa"]
     alpha = task["design_alpha"]
     hint = min(design, 1e-6)
+    conv = pt["values"]["input_converter"]
     rounded_a = spec.alpha_int
     if pt["values"]["constant"] == "retuned":
-        tuned = retune_constant(spec, spec_data, noise, design, cfg["retune"], pfa_hint=hint)
+        tuned = retune_constant(spec, spec_data, noise, design, cfg["retune"], pfa_hint=hint, converter=conv)
         spec = tuned.spec
         spec_data = spec.to_dict(resolved=True)
         spec_data.pop("study", None)
@@ -492,7 +499,7 @@ def evaluate_point(task: dict) -> dict:
             if a not in pt["spec_data"]["fixed"]:
                 spec_data["fixed"].pop(a, None)
         pfa_rounded, met = tuned.pfa_rounded, tuned.met
-    law = trigger_law(spec, noise, pfa_hint=hint)
+    law = trigger_law(spec, noise, pfa_hint=hint, converter=conv)
     pfa = law.pfa()
     if pt["values"]["constant"] != "retuned":
         pfa_rounded, met = pfa, None
@@ -515,13 +522,13 @@ def evaluate_point(task: dict) -> dict:
     row["pfa_exact_err_bound"] = law.pfa_error_bound()
     row["pfa_ratio"] = pfa / design
     # CFAR check: the same pipeline with the noise 3 dB higher (a CFAR detector keeps its Pfa).
-    pfa_up = trigger_law(spec, 2.0 * noise, pfa_hint=hint).pfa()
+    pfa_up = trigger_law(spec, 2.0 * noise, pfa_hint=hint, converter=conv).pfa()
     row["pfa_exact_noise_x2"] = pfa_up
     row["pfa_ratio_noise_x2"] = pfa_up / design
     trials = cfg["mc_trials"]
     if trials:
         rng = np.random.default_rng(point_seed(cfg["seed"], pt["index"]))
-        mc = run_trials(spec, noise, trials, rng)
+        mc = run_trials(spec, noise, trials, rng, converter=conv)
         lo, hi = clopper_pearson(mc.detections, mc.trials, cfg["confidence"])
         row.update(mc_trials=mc.trials, mc_false_alarms=mc.detections, mc_pfa=mc.rate, mc_ci_low=lo, mc_ci_high=hi,
                    mc_agrees=bool(lo - row["pfa_exact_err_bound"] <= pfa <= hi + row["pfa_exact_err_bound"]),
@@ -535,10 +542,10 @@ def evaluate_point(task: dict) -> dict:
     row["thr_err_arith_rms_lsb"] = law.arith_err_rms_lsb
     row["thr_err_arith_max_lsb"] = law.arith_err_max_lsb
     row["saturation_rate"] = law.saturation
-    row["clip_rate_noise"] = clip_rate(noise, spec.input_bits)
+    row["clip_rate_noise"] = clip_rate(noise, spec.input_bits, converter=conv)
     snr_top = 10.0 ** (max(cfg["snr_db"]) / 10.0)
     for sw in cfg["swerling"]:
-        row[f"clip_rate_target_sw{sw}"] = clip_rate(noise, spec.input_bits, snr_top, sw)
+        row[f"clip_rate_target_sw{sw}"] = clip_rate(noise, spec.input_bits, snr_top, sw, converter=conv)
     for sw in cfg["swerling"]:
         need = _snr_needed(law, cfg["pd"], sw)
         ref_equal = td.required_snr_db(kind, n, pfa, cfg["pd"], sw, rank) if 0 < pfa < cfg["pd"] else math.nan
@@ -547,7 +554,7 @@ def evaluate_point(task: dict) -> dict:
         row[f"loss_sw{sw}_db"] = need - ref_equal
         row[f"snr_shift_sw{sw}_db"] = need - task["float_snr_db"][sw]
     if cfg["noise_range"]:
-        row.update(_range_columns(spec, cfg, task["range_levels"], hint))
+        row.update(_range_columns(spec, cfg, task["range_levels"], hint, conv))
     for sw in cfg["swerling"]:
         for snr in cfg["snr_db"]:
             row[f"pd_fixed_sw{sw}_{_snr_key(snr)}"] = law.pd(snr, sw)
@@ -559,12 +566,12 @@ def evaluate_point(task: dict) -> dict:
     return {"row": row, "curve": curve, "spec_data": spec_data}
 
 
-def _range_columns(spec: BlockSpec, cfg: dict, levels: list, hint: float) -> dict:
+def _range_columns(spec: BlockSpec, cfg: dict, levels: list, hint: float, conv: str) -> dict:
     """Pfa ratio and loss at every noise level of the range: the worst case and where it occurs."""
     design = cfg["design_pfa"]
     ratios, losses = [], {sw: [] for sw in cfg["swerling"]}
     for lv in levels:
-        law = trigger_law(spec, lv, pfa_hint=hint)
+        law = trigger_law(spec, lv, pfa_hint=hint, converter=conv)
         pfa = law.pfa()
         ratios.append(pfa / design)
         for sw in cfg["swerling"]:

@@ -164,7 +164,8 @@ class Retuned:
 
 
 def retune_constant(spec: BlockSpec, spec_data: Mapping[str, Any], noise_lsb: float, design_pfa: float,
-                    mode: str = "closest-not-above", pfa_hint: float | None = None) -> Retuned:
+                    mode: str = "closest-not-above", pfa_hint: float | None = None,
+                    converter: str = "floor") -> Retuned:
     """Choose A so that the pipeline's exact Pfa at ``noise_lsb`` meets ``design_pfa`` (module docstring).
 
     Parameters
@@ -179,6 +180,8 @@ def retune_constant(spec: BlockSpec, spec_data: Mapping[str, Any], noise_lsb: fl
     mode : {"closest-not-above", "closest"}
     pfa_hint : float, optional
         Smallest probability of interest (truncation of the input law).
+    converter : {"floor", "round"}
+        Input converter (:mod:`refmodel.fixedpoint.input_quantiser`).
 
     Returns
     -------
@@ -187,7 +190,7 @@ def retune_constant(spec: BlockSpec, spec_data: Mapping[str, Any], noise_lsb: fl
     if mode not in RETUNE_MODES:
         raise SpecError("--retune", f"got {mode!r}", ", ".join(RETUNE_MODES))
     hint = pfa_hint if pfa_hint is not None else min(design_pfa, 1e-6)
-    p, b, dropped = statistic_law(spec, float(noise_lsb), hint)
+    p, b, dropped = statistic_law(spec, float(noise_lsb), hint, converter)
     s = np.arange(p.size, dtype=np.int64)
     top = (1 << spec.input_bits) - 1
     digits = spec.alpha_csd_digits
@@ -201,7 +204,7 @@ def retune_constant(spec: BlockSpec, spec_data: Mapping[str, Any], noise_lsb: fl
                 cache[a] = (0.0, 0.0, None)
                 return cache[a]
             c = np.clip(trigger_words(sp, sp.threshold_from_statistic(s)), 0, top + 1)
-            sf = word_sf(c, float(noise_lsb), sp.input_bits)
+            sf = word_sf(c, float(noise_lsb), sp.input_bits, converter=converter)
             cache[a] = (float(np.sum(p * sf)), float(np.sum(b * sf)) + dropped, sp)
         return cache[a]
 

@@ -52,6 +52,7 @@ _AXIS_LABEL = {
     "threshold_bits": "threshold width W_T (bits, 0 = automatic)",
     "sum_bits": "side-sum width W_S (bits, 0 = automatic)",
     "constant": "constant A",
+    "input_converter": "input converter",
     "noise_level_lsb": "noise level (LSB of the spec's input word)",
     "rounding": "rounding mode",
 }
@@ -105,7 +106,7 @@ def _cheapest_row(result: StudyResult) -> dict:
 
 
 def _plot_axes(result: StudyResult) -> list[str]:
-    return [a for a in result.config.swept if a not in ("rounding", "constant")]
+    return [a for a in result.config.swept if a not in ("rounding", "constant", "input_converter")]
 
 
 def _slice(result: StudyResult, axis: str, ref: dict) -> list[dict]:
