@@ -407,10 +407,14 @@ def edge_warnings(result: StudyResult) -> list[str]:
     return out
 
 
-def _monotone(seq) -> bool:
+#: Steps smaller than these are not counted as changes of direction (Pfa ratio, loss in dB).
+MONOTONE_TOL = {"Pfa": 1e-6, "loss": 1e-4}
+
+
+def _monotone(seq, tol: float) -> bool:
     vals = [v for v in seq if math.isfinite(v)]
-    up = all(b >= a - 1e-12 * max(1.0, abs(a)) for a, b in zip(vals, vals[1:]))
-    down = all(b <= a + 1e-12 * max(1.0, abs(a)) for a, b in zip(vals, vals[1:]))
+    up = all(b >= a - tol for a, b in zip(vals, vals[1:]))
+    down = all(b <= a + tol for a, b in zip(vals, vals[1:]))
     return up or down
 
 
@@ -423,7 +427,7 @@ def non_monotone_notes(result: StudyResult, ref: dict) -> list[str]:
         if len(rows) < 3:
             continue
         bad = [name for name, key in (("Pfa", lambda r: r["pfa_ratio"]), ("loss", lambda r: _worst_loss(r, cfg)))
-               if not _monotone([key(r) for r in rows])]
+               if not _monotone([key(r) for r in rows], MONOTONE_TOL[name])]
         if not bad:
             continue
         lines += [f"{' and '.join(bad)} along `{axis}` (through point #{ref['index']}) are not monotone. Each "
@@ -459,7 +463,7 @@ def _summary(result: StudyResult) -> str:
                      f"its cells with weights {w} (`docs/quantisation-study.md`); ties: word bits, fewer non-zero "
                      "digits in A, cheaper rounding, smaller loss.")
     else:
-        cost_text = ("Cost = input_bits + alpha_frac_bits + threshold_frac_bits (area switched off); ties: fewer "
+        cost_text = ("Cost = input_bits + alpha_frac_bits + threshold_frac_bits (area not costed); ties: fewer "
                      "non-zero digits in A, cheaper rounding, smaller loss.")
     range_text = ""
     if cfg.noise_range:
@@ -500,6 +504,14 @@ def _summary(result: StudyResult) -> str:
         else:
             lines.append(f"- constant A = {r['alpha_int']} ({r['alpha_nonzero_digits']} non-zero signed digits), "
                          "alpha rounded")
+        other = [x for x in rows if x["constant"] != r["constant"]
+                 and all(x[a] == r[a] for a in AXES if a != "constant")]
+        if other:
+            o = other[0]
+            lines.append(f"- with the constant {o['constant']} instead: A = {o['alpha_int']}, exact Pfa "
+                         f"{o['pfa_ratio']:.4f} x design, worst loss {_num(_worst_loss(o, cfg))} dB"
+                         + (f", area {o['area_luteq']:g}" if "area_luteq" in o else "")
+                         + (", within the budget too" if o["meets_budget"] else ", outside the budget"))
         lines.append(f"- exact Pfa {r['pfa_exact']:.4g} ({r['pfa_ratio']:.4f} x design; realised alpha "
                      f"{r['realised_alpha']:.6g}, {r['alpha_rel_err']:+.2e} from the design)")
         lines += [f"- loss {_num(r[f'loss_sw{sw}_db'])} dB ({_SW_NAME[sw]})" for sw in cfg.swerling]
