@@ -162,4 +162,4 @@ def area_coster(args: argparse.Namespace):
         raise SpecError("--no-area", "yosys not found on PATH, so the area cannot be costed",
                         "Yosys installed (`make tools`), or --no-area")
     return AreaCoster(flow=args.area_flow or DEFAULT_FLOW, weights=weights, cache_dir=args.area_cache,
-                      workers=args.workers)
+                      workers=args.workers, progress=not args.no_progress)

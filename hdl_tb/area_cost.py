@@ -42,6 +42,7 @@ import hashlib
 import json
 import os
 import subprocess
+import sys
 from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 from typing import Iterable, Mapping, Sequence
@@ -134,6 +135,8 @@ class AreaCoster:
         RTL files (default the reference core); part of the cache key.
     top : str
         Top module.
+    progress : bool
+        A tqdm progress bar on stderr while Yosys runs.
 
     Raises
     ------
@@ -142,7 +145,8 @@ class AreaCoster:
     """
 
     def __init__(self, flow: str = DEFAULT_FLOW, weights=None, cache_dir: str | Path | None = None,
-                 workers: int | None = None, sources: Sequence[str | Path] | None = None, top: str = CORE_TOP):
+                 workers: int | None = None, sources: Sequence[str | Path] | None = None, top: str = CORE_TOP,
+                 progress: bool = False):
         require(flow in AREA_FLOWS, "--area-flow", f"got {flow!r}", ", ".join(AREA_FLOWS))
         self.flow = flow
         self.weights = parse_weights(weights)
@@ -150,6 +154,7 @@ class AreaCoster:
         self.workers = max(1, int(workers if workers is not None else (os.cpu_count() or 1)))
         self.sources = [Path(p).resolve() for p in (sources if sources is not None else CORE_SOURCES)]
         self.top = top
+        self.progress = progress
         self._version = _yosys_version()
         digest = hashlib.sha256()
         for p in self.sources:
@@ -213,11 +218,19 @@ class AreaCoster:
             else:
                 todo[k] = p
         if todo:
-            with ThreadPoolExecutor(max_workers=min(self.workers, len(todo))) as pool:
-                for k, rec in zip(todo, pool.map(self._synth, todo.values())):
-                    self._write(k, rec)
-                    found[k] = rec
-                    self.misses += 1
+            from tqdm import tqdm
+
+            bar = tqdm(total=len(todo), desc=f"area ({self.flow})", unit="core", file=sys.stderr,
+                       disable=not self.progress)
+            try:
+                with ThreadPoolExecutor(max_workers=min(self.workers, len(todo))) as pool:
+                    for k, rec in zip(todo, pool.map(self._synth, todo.values())):
+                        self._write(k, rec)
+                        found[k] = rec
+                        self.misses += 1
+                        bar.update(1)
+            finally:
+                bar.close()
         return [dict(found[k]) for k in keys]
 
     def cost_many(self, specs: Iterable[BlockSpec]) -> list[dict]:

@@ -44,7 +44,6 @@ import numpy as np
 from ..block_spec import BlockSpec, spec_from_dict
 from ..errors import SpecError
 from ..fixedpoint.exact_pfa import statistic_law, trigger_words
-from ..fixedpoint.fixed_arith import naf_digits
 from ..fixedpoint.input_quantiser import word_sf
 
 __all__ = ["RETUNE_MODES", "Retuned", "next_allowed", "retune_constant", "spec_with_constant"]
@@ -116,8 +115,7 @@ def next_allowed(x: int, digits: int, up: bool = True) -> int | None:
     every integer's NAF weight.
     """
     if digits == 0:
-        v = x if up else x
-        return v if v >= 1 else (1 if up else None)
+        return x if x >= 1 else (1 if up else None)
     if up:
         v = _up(max(x, 1), digits)
         return None if v == math.inf else int(v)
@@ -264,7 +262,3 @@ def retune_constant(spec: BlockSpec, spec_data: Mapping[str, Any], noise_lsb: fl
     met = pf <= design_pfa if mode == "closest-not-above" else True
     return Retuned(sp, best, a0, pf, pfa0, bound, met, len(cache))
 
-
-def naf_weight(a: int) -> int:
-    """Non-zero signed digits of ``a`` (its NAF weight)."""
-    return len(naf_digits(a))
