@@ -65,6 +65,20 @@ def test_area_of_points_equals_a_direct_yosys_run(tmp_path, bits, frac):
     assert row["area_luteq"] == pytest.approx(row["area_luts"] + 0.5 * row["area_flip_flops"])
 
 
+def test_xilinx_area_equals_a_direct_yosys_run(tmp_path):
+    """Yosys 0.23 ``synth_xilinx`` 7-series cells (LUT1..LUT6, FDRE, CARRY4, DSP48E1, SRL16E); an INV
+    primitive is counted as a LUT (it is placed in one; common practice, no source)."""
+    spec = _spec(10, 10)
+    row = AreaCoster(flow="xilinx", cache_dir=tmp_path / "cache", workers=1).cost_many([spec])[0]
+    cells = _direct_yosys(core_parameters(spec), tmp_path, "synth_xilinx -flatten -noiopad -noclkbuf -top cfar_stream")
+    assert row["area_luts"] == sum(n for k, n in cells.items() if re.fullmatch(r"LUT[1-6]|INV", k))
+    assert row["area_flip_flops"] == sum(n for k, n in cells.items() if re.fullmatch(r"FD[RSCP]E", k))
+    assert row["area_carries"] == cells.get("CARRY4", 0) and row["area_dsps"] == cells.get("DSP48E1", 0)
+    assert row["area_srls"] == cells.get("SRL16E", 0) + cells.get("SRLC32E", 0)
+    assert row["area_luteq"] == pytest.approx(row["area_luts"] + 0.5 * row["area_flip_flops"] + row["area_srls"]
+                                              + 100 * row["area_dsps"])
+
+
 def test_cache_is_reused_and_keyed_by_parameters(tmp_path):
     specs = [_spec(8, 8), _spec(8, 8), _spec(10, 8)]
     first = AreaCoster(flow="ice40", cache_dir=tmp_path, workers=2)
