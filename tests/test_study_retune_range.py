@@ -336,3 +336,16 @@ def test_converter_axis_in_the_study():
     with pytest.raises(SpecError) as exc:
         qs.study_config(_spec(), {"input_converter": "ceil"})
     assert exc.value.field == "--input-converter"
+
+
+def test_the_alpha_the_summary_gives_for_a_retuned_point_rebuilds_its_constant():
+    """A block written with detector.alpha = the realised alpha of a re-tuned point has that point's A
+    (docs/bit-true.md section 4: A = round(alpha * 2^F_A / D))."""
+    res = _study({"input_bits": "8", "noise_level_lsb": "64", "constant": "retuned"})
+    r = res.rows[0]
+    import tomllib
+
+    text = (f"[detector]\nkind = 'ca'\nref_cells_per_side = 4\nguard_cells_per_side = 1\n"
+            f"alpha = {r['realised_alpha']!r}\n[fixed]\ninput_bits = 8\nalpha_frac_bits = 10\n")
+    spec = spec_from_dict(tomllib.loads(text))
+    assert spec.alpha_int == r["alpha_int"] != r["alpha_int_rounded"]

@@ -500,7 +500,9 @@ def _summary(result: StudyResult) -> str:
         if r["constant"] == "retuned":
             lines.append(f"- constant A = {r['alpha_int']} ({r['alpha_nonzero_digits']} non-zero signed digits), "
                          f"**re-tuned** to the exact Pfa ({cfg.retune}); rounding alpha gives A = "
-                         f"{r['alpha_int_rounded']}, whose exact Pfa is {r['pfa_ratio_rounded']:.4f} x design")
+                         f"{r['alpha_int_rounded']}, whose exact Pfa is {r['pfa_ratio_rounded']:.4f} x design. To "
+                         f"build it, give the spec `detector.alpha = {r['realised_alpha']!r}` instead of "
+                         f"`design_pfa`: that alpha rounds to exactly this A")
         else:
             lines.append(f"- constant A = {r['alpha_int']} ({r['alpha_nonzero_digits']} non-zero signed digits), "
                          "alpha rounded")
