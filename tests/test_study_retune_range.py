@@ -349,3 +349,15 @@ def test_the_alpha_the_summary_gives_for_a_retuned_point_rebuilds_its_constant()
             f"alpha = {r['realised_alpha']!r}\n[fixed]\ninput_bits = 8\nalpha_frac_bits = 10\n")
     spec = spec_from_dict(tomllib.loads(text))
     assert spec.alpha_int == r["alpha_int"] != r["alpha_int_rounded"]
+
+
+def test_map_block_gets_no_area_and_says_so(tmp_path, capsys):
+    """No reference core for map blocks yet: the study of its 1D twin must not cost the twin's core as its area."""
+    p = tmp_path / "m.toml"
+    p.write_text("[detector]\nkind='ca'\ndesign_pfa=1e-3\n[fixed]\ninput_bits=10\n"
+                 "[map]\nrange_cells=32\ndoppler_bins=16\nref_range=2\nref_doppler=1\nguard_range=1\n"
+                 "[study]\nmc_trials=0\nsnr_db=[13]\nswerling=[1]\nconstant='rounded'\n", encoding="utf-8")
+    code, _, err = _run(capsys, ["study", str(p), "-o", str(tmp_path / "st"), "--workers", "1", "--no-progress"])
+    assert code == 0 and "no reference core for map blocks yet" in err
+    text = (tmp_path / "st" / "summary.md").read_text()
+    assert "(area not costed)" in text and "area_luteq" not in (tmp_path / "st" / "points.csv").read_text()
