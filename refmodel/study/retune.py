@@ -14,6 +14,12 @@ bisection over the integers:
 * ``closest``: that A or the next allowed A below it, whichever Pfa is
   closer to the design Pfa (relative distance ``|Pfa / Pfa_design - 1|``).
 
+With ``fixed.truncate_partials`` each partial product of A's signed
+digits is floored on its own, and the threshold is then only nearly
+monotone in A; the bisection still ends at an A whose Pfa is at most the
+design Pfa next to one whose Pfa is above it, but not necessarily the
+smallest such A.
+
 "Allowed" means any integer ``>= 1`` when the spec rounds plainly
 (``alpha_csd_digits = 0``), else an integer of at most ``alpha_csd_digits``
 non-zero signed digits (:func:`next_allowed`). The law of the statistic S
