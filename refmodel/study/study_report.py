@@ -236,7 +236,7 @@ def _plot_pfa(result: StudyResult, path: Path, ref: dict) -> None:
         top = max([1 + 2 * cfg.pfa_tolerance] + ratios)
         ax.set_ylim(0, min(top * 1.05, max(3.0, 1 + 4 * cfg.pfa_tolerance)))
         ax.set_xlabel(_AXIS_LABEL[axis] if axis else "grid point (index)")
-        ax.set_ylabel("Pfa / design Pfa (linear; points above the frame are cut)")
+        ax.set_ylabel("Pfa / design Pfa (linear)\n(points above the frame are cut)")
         _style_axis(ax, axis if axis else "input_bits")
         ax.grid(True, alpha=0.3)
     _finish(fig, axs, path, "Realised false-alarm probability over the design value\n" + _spec_title(result))
@@ -308,7 +308,15 @@ def _plot_pareto(result: StudyResult, path: Path) -> None:
                    label=f"recommended #{r['index']}")
     ax.axhline(cfg.max_loss_db, color="k", linestyle="--", linewidth=1, label=f"loss budget {cfg.max_loss_db:g} dB")
     ax.set_xlabel(_cost_name(result) + (f", Yosys {result.area_info.get('flow')}" if result.area_info else ""))
-    ax.set_ylabel(f"worst quantisation loss at Pd = {cfg.pd:g} (dB)")
+    ylabel = f"worst quantisation loss at Pd = {cfg.pd:g} (dB)"
+    losses = [v for v in (_worst_loss(r, cfg) for r in result.rows) if math.isfinite(v)]
+    keep = [_worst_loss(r, cfg) for r in loose] or losses
+    if keep and losses:
+        top = max(4 * cfg.max_loss_db, 1.15 * max(keep))
+        if max(losses) > top:  # far-off points would squash the front: cut them and say so
+            ax.set_ylim(min(0.0, min(losses)) - 0.05 * top, top)
+            ylabel += "\n(points above the frame are cut)"
+    ax.set_ylabel(ylabel)
     ax.grid(True, alpha=0.3)
     _finish(fig, [ax], path, "Loss against area\n" + _spec_title(result))
 
