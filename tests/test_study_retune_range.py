@@ -361,3 +361,34 @@ def test_map_block_gets_no_area_and_says_so(tmp_path, capsys):
     assert code == 0 and "no reference core for map blocks yet" in err
     text = (tmp_path / "st" / "summary.md").read_text()
     assert "(area not costed)" in text and "area_luteq" not in (tmp_path / "st" / "points.csv").read_text()
+
+
+def test_issue14_plots_integer_ticks_legend_outside_ratio_axis(tmp_path, monkeypatch):
+    """Issue 14 item 5: integer ticks on integer axes, legends outside the data, the Pfa as a ratio on a
+    linear axis with the tolerance band, titles that name the spec and the budget."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    figs = []
+    monkeypatch.setattr(plt, "close", lambda fig=None: figs.append(fig))
+    res = _study({"constant": "rounded", "input_bits": "9:12", "noise_level_lsb": "64"})
+    write_report(res, tmp_path / "r")
+    by_title = {f._suptitle.get_text().splitlines()[0]: f for f in figs if f is not None and f._suptitle}
+    loss = by_title["Quantisation loss (extra SNR over the float detector at the same Pfa)"]
+    pfa = by_title["Realised false-alarm probability over the design value"]
+    for fig in (loss, pfa):
+        ax = fig.axes[0]
+        fig.canvas.draw()
+        lo, hi = ax.get_xlim()
+        ticks = [t for t in ax.get_xticks() if lo <= t <= hi]
+        assert ticks and all(float(t).is_integer() for t in ticks)
+        assert ax.get_legend() is None and len(fig.legends) == 1
+        leg = fig.legends[0].get_window_extent()
+        assert not leg.overlaps(ax.get_window_extent())
+        assert "budget loss <= 0.1 dB, Pfa within 10%" in fig._suptitle.get_text()
+    ax = pfa.axes[0]
+    assert ax.get_yscale() == "linear"
+    band = [p for p in ax.patches if abs(p.get_y() - 0.9) < 1e-12 and abs(p.get_height() - 0.2) < 1e-12]
+    assert band  # the tolerance band 1 +- 0.1 of the ratio
