@@ -392,3 +392,12 @@ def test_issue14_plots_integer_ticks_legend_outside_ratio_axis(tmp_path, monkeyp
     assert ax.get_yscale() == "linear"
     band = [p for p in ax.patches if abs(p.get_y() - 0.9) < 1e-12 and abs(p.get_height() - 0.2) < 1e-12]
     assert band  # the tolerance band 1 +- 0.1 of the ratio
+
+
+def test_edge_warning_when_no_point_meets_the_budget():
+    """Finer words lose less (common practice, no source): with a budget of 0 dB nothing meets it, and the
+    point of least loss is at the widest input swept, which the summary must say."""
+    res = _study({"constant": "rounded", "input_bits": "8,10", "noise_level_lsb": "64", "max_loss_db": "0"})
+    assert res.recommended is None
+    warn = edge_warnings(res)
+    assert len(warn) == 1 and "`input_bits` = 10, the largest value swept" in warn[0]

@@ -392,26 +392,32 @@ def no_effect_axes(result: StudyResult) -> list[str]:
 
 
 def edge_warnings(result: StudyResult) -> list[str]:
-    """Where the recommended point sits on the edge of the swept grid, one sentence per axis."""
-    if result.recommended is None:
-        return []
-    r = result.rows[result.recommended]
+    """Where the recommended point (else the point of least loss) sits on the edge of the swept grid."""
+    r = reference_row(result)
+    rec = result.recommended is not None
     out = []
     for axis in result.config.swept:
         if axis not in INTEGER_AXES and axis != "noise_level_lsb":
             continue
         vals = sorted(v for v in result.config.axes[axis] if not (axis in ("threshold_bits", "sum_bits") and v == 0))
-        if len(vals) < 2 or r[axis] not in vals:
+        if len(vals) < 2 or r[axis] not in vals or r[axis] not in (vals[0], vals[-1]):
             continue
-        if r[axis] == vals[0] and axis != "noise_level_lsb":
-            out.append(f"`{axis}` = {r[axis]} is the smallest value swept: a smaller one was not tried and may "
-                       f"meet the budget at less cost (extend `{result.config.fields[axis]}` downwards).")
-        elif r[axis] == vals[-1] and axis != "noise_level_lsb":
-            out.append(f"`{axis}` = {r[axis]} is the largest value swept: the budget is met only at the edge of "
-                       f"the grid; larger values were not tried (extend `{result.config.fields[axis]}` upwards).")
-        elif axis == "noise_level_lsb" and r[axis] in (vals[0], vals[-1]):
+        opt = f"`{result.config.fields[axis]}`"
+        low = r[axis] == vals[0]
+        if axis == "noise_level_lsb":
             out.append(f"the noise level {r[axis]:g} LSB is at the edge of the levels swept: the answer may not "
                        "hold beyond it (give a noise range, `--noise-range`).")
+        elif rec and low:
+            out.append(f"`{axis}` = {r[axis]} is the smallest value swept: a smaller one was not tried and may "
+                       f"meet the budget at less cost (extend {opt} downwards).")
+        elif rec:
+            out.append(f"`{axis}` = {r[axis]} is the largest value swept: the budget is met only at the edge of "
+                       f"the grid; larger values were not tried (extend {opt} upwards).")
+        else:
+            side, way = ("smallest", "downwards") if low else ("largest", "upwards")
+            out.append(f"no point meets the budget, and the point of least loss (#{r['index']}) has `{axis}` = "
+                       f"{r[axis]}, the {side} value swept: values beyond it were not tried and may meet it "
+                       f"(extend {opt} {way}).")
     return out
 
 
