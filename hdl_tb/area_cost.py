@@ -25,9 +25,15 @@ beside its LUT in the same slice or logic cell); an SRL 1 (it takes a LUT of
 the slice); a DSP block 100 (about the LUTs of the multiplier it replaces);
 a memory bit 1/64 (a 64-bit LUT RAM is one LUT).
 
-The refmodel study takes the coster as a plain callable (``spec -> dict``):
-data flows refmodel -> vectors -> hdl_tb, so refmodel never imports this
-module; :mod:`cfarvec.cmd_study` builds the coster and hands it in.
+The refmodel study takes the coster as a plain callable (a list of block
+specs in, one dict of columns per spec out): data flows refmodel -> vectors
+-> hdl_tb, so refmodel never imports this module; :mod:`cfarvec.cmd_study`
+builds the coster and hands it in.
+
+Several parameter sets in one Yosys process (reading the cell library once)
+would save about a quarter of the Xilinx flow's time, but the netlists then
+differ by a few LUTs from those of a fresh process (tried with Yosys 0.23):
+each set gets its own process so that the counts equal a direct run.
 
 Typical use::
 
