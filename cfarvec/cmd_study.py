@@ -135,8 +135,9 @@ def run(args: argparse.Namespace) -> int:
         r = result.rows[result.recommended]
         print(f"recommended point #{r['index']}: input_bits {r['input_bits']}, alpha_frac_bits "
               f"{r['alpha_frac_bits']}, alpha_csd_digits {r['alpha_csd_digits']}, threshold_frac_bits "
-              f"{r['threshold_frac_bits']}, rounding {r['rounding']}, constant {r['constant']} A = {r['alpha_int']} "
-              f"(rounding gives {r['alpha_int_rounded']}), Pfa {r['pfa_ratio']:.4f} x design"
+              f"{r['threshold_frac_bits']}, rounding {r['rounding']}, constant {r['constant']} A = {r['alpha_int']}"
+              + (f" (rounding gives {r['alpha_int_rounded']})" if r["constant"] == "retuned" else "")
+              + f", Pfa {r['pfa_ratio']:.4f} x design"
               + (f", area {r['area_luteq']:g} LUT-equivalents" if "area_luteq" in r else f" ({r['cost_bits']} bits)"))
     else:
         print("no point of the grid meets the budget (see summary.md)")

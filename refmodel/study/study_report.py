@@ -444,7 +444,8 @@ def non_monotone_notes(result: StudyResult, ref: dict) -> list[str]:
                if not _monotone([key(r) for r in rows], MONOTONE_TOL[name])]
         if not bad:
             continue
-        lines += [f"{' and '.join(bad)} along `{axis}` (through point #{ref['index']}) are not monotone. Each "
+        lines += [f"{' and '.join(bad)} along `{axis}` (through point #{ref['index']}) "
+                  f"{'are' if len(bad) > 1 else 'is'} not monotone. Each "
                   "point rounds the constant A afresh, so the realised threshold factor (alpha) moves up and down "
                   "around the design value; a point whose A rounds alpha up has the lower Pfa (and a larger "
                   "loss), one that rounds it down the higher Pfa:", "",
