@@ -102,7 +102,7 @@ def options_from_args(args: argparse.Namespace) -> dict:
         "rounding": args.rounding, "noise_level_lsb": args.noise_lsb, "noise_scaling": args.noise_scaling,
         "snr_db": args.snr_db, "pd": args.pd, "swerling": args.swerling, "mc_trials": args.mc_trials,
         "confidence": args.confidence, "seed": args.seed, "max_loss_db": args.max_loss_db,
-        "pfa_tolerance": args.pfa_tolerance,
+        "pfa_tolerance": args.pfa_tolerance, "area_flow": args.area_flow, "area_weights": args.area_weights,
     }
 
 
@@ -122,7 +122,7 @@ def run(args: argparse.Namespace) -> int:
     out = check_safe_target(args.output, "--output", protect=[args.spec])
     check_target(out, args.force, "--output")
     require(args.workers is None or args.workers >= 1, "--workers", f"got {args.workers}", "an integer >= 1")
-    area = None if args.no_area else area_coster(args)
+    area = None if args.no_area else area_coster(args, cfg)
     if area is not None and getattr(spec, "is_map", False):
         # The study of a map block is that of its 1D arithmetic twin, whose core is not the map's.
         print("cfarvec study: note: no reference core for map blocks yet, so no area; cheapest by word bits",
@@ -145,8 +145,11 @@ def run(args: argparse.Namespace) -> int:
     return 0
 
 
-def area_coster(args: argparse.Namespace):
+def area_coster(args: argparse.Namespace, cfg):
     """The area-costing callable handed to the study (:class:`hdl_tb.area_cost.AreaCoster`).
+
+    Flow and weights come from ``cfg`` (``--area-flow`` / ``--area-weights``, else
+    ``[study]`` ``area_flow`` / ``area_weights``).
 
     Raises
     ------
@@ -155,12 +158,12 @@ def area_coster(args: argparse.Namespace):
     """
     import shutil
 
-    from hdl_tb.area_cost import DEFAULT_FLOW, AreaCoster, parse_weights
+    from hdl_tb.area_cost import AreaCoster, parse_weights
     from refmodel.errors import SpecError
 
-    weights = parse_weights(args.area_weights)
+    weights = parse_weights(cfg.area_weights, field=cfg.fields["area_weights"])
     if shutil.which("yosys") is None:
         raise SpecError("--no-area", "yosys not found on PATH, so the area cannot be costed",
                         "Yosys installed (`make tools`), or --no-area")
-    return AreaCoster(flow=args.area_flow or DEFAULT_FLOW, weights=weights, cache_dir=args.area_cache,
+    return AreaCoster(flow=cfg.area_flow, weights=weights, cache_dir=args.area_cache,
                       workers=args.workers, progress=not args.no_progress)

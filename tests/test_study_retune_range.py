@@ -401,3 +401,19 @@ def test_edge_warning_when_no_point_meets_the_budget():
     assert res.recommended is None
     warn = edge_warnings(res)
     assert len(warn) == 1 and "`input_bits` = 10, the largest value swept" in warn[0]
+
+
+def test_area_settings_from_the_study_section(tmp_path, capsys):
+    spec = tmp_path / "b.toml"
+    spec.write_text(SPEC + "area_flow = 'xilinx'\narea_weights = { dsp = 40 }\n", encoding="utf-8")
+    from refmodel.block_spec import load_spec
+
+    cfg = qs.study_config(load_spec(spec))
+    assert cfg.area_flow == "xilinx" and cfg.area_weights == {"dsp": 40}
+    assert qs.study_config(load_spec(spec), {"area_flow": "ice40"}).area_flow == "ice40"
+    spec.write_text(SPEC + "area_weights = { dsps = 40 }\n", encoding="utf-8")
+    code, _, err = _run(capsys, ["study", str(spec), "-o", str(tmp_path / "r"), "--no-progress"])
+    assert code == 2 and err.count("\n") == 1 and err.startswith("cfarvec study: error: study.area_weights"), err
+    spec.write_text(SPEC + "area_flow = 'asic'\n", encoding="utf-8")
+    code, _, err = _run(capsys, ["study", str(spec), "-o", str(tmp_path / "r"), "--no-progress"])
+    assert code == 2 and err.startswith("cfarvec study: error: study.area_flow"), err

@@ -138,11 +138,17 @@ OPTIONS = {
     "seed": "--seed",
     "max_loss_db": "--max-loss-db",
     "pfa_tolerance": "--pfa-tolerance",
+    "area_flow": "--area-flow",
+    "area_weights": "--area-weights",
 }
+#: Flows the area can be costed with (checked here; costed by the caller's area callable).
+AREA_FLOWS = ("ice40", "xilinx")
 _INT_RANGES = {"input_bits": (1, 32), "alpha_frac_bits": (0, 40), "alpha_csd_digits": (0, 16),
                "threshold_frac_bits": (0, 40), "threshold_bits": (0, 62), "sum_bits": (0, 64)}
 NOISE_SCALINGS = ("track", "fixed")
 DEFAULTS = {
+    "area_flow": "ice40",
+    "area_weights": None,
     "retune": "closest-not-above",
     "noise_range_lsb": None,
     "noise_range_points": 5,
@@ -214,6 +220,11 @@ class StudyConfig:
         scaling) over which the budget must also hold.
     given : tuple of str
         Axes whose values the user gave (option or ``[study]``).
+    area_flow : {"ice40", "xilinx"}
+        Flow the caller's area costing should use.
+    area_weights : str, mapping or None
+        LUT-equivalent weights as given (parsed by the area costing, which
+        names ``fields["area_weights"]`` in its errors).
     """
 
     axes: dict
@@ -233,6 +244,8 @@ class StudyConfig:
     retune: str = "closest-not-above"
     noise_range: tuple | None = None
     given: tuple = ()
+    area_flow: str = "ice40"
+    area_weights: Any = None
 
     def to_dict(self) -> dict:
         """Plain, JSON-ready form."""
@@ -315,6 +328,10 @@ def study_config(spec: BlockSpec, options: Mapping[str, Any] | None = None) -> S
 
     scaling = choice(fields["noise_scaling"], get("noise_scaling"), NOISE_SCALINGS)
     retune = choice(fields["retune"], get("retune"), RETUNE_MODES)
+    area_flow = choice(fields["area_flow"], get("area_flow"), AREA_FLOWS)
+    area_weights = get("area_weights")
+    require(area_weights is None or isinstance(area_weights, (str, Mapping)), fields["area_weights"],
+            f"got {area_weights!r}", "'lut=1,ff=0.5,...' or a table of weights")
     noise_range = None
     if get("noise_range_lsb") is not None:
         raw_range = get("noise_range_lsb")
@@ -342,7 +359,8 @@ def study_config(spec: BlockSpec, options: Mapping[str, Any] | None = None) -> S
     return StudyConfig(axes=axes, swept=swept, fields=fields, noise_scaling=scaling, snr_db=snr, pd=pd,
                        swerling=sw, mc_trials=trials, confidence=conf, seed=seed, max_loss_db=max_loss,
                        pfa_tolerance=tol, design_pfa=float(design_pfa), base_input_bits=spec.input_bits,
-                       retune=retune, noise_range=noise_range, given=given)
+                       retune=retune, noise_range=noise_range, given=given, area_flow=area_flow,
+                       area_weights=dict(area_weights) if isinstance(area_weights, Mapping) else area_weights)
 
 
 # --------------------------------------------------------------------------
