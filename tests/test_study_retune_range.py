@@ -28,6 +28,12 @@ from refmodel.study import quant_study as qs
 from refmodel.study.retune import next_allowed, retune_constant
 from refmodel.study.study_report import edge_warnings, no_effect_axes, non_monotone_notes, reference_row, write_report
 
+@pytest.fixture(autouse=True)
+def _area_cache(tmp_path_factory, monkeypatch):
+    """Synthesis results go to a test cache, never to the user's (hdl_tb.area_cost.CACHE_ENV)."""
+    monkeypatch.setenv("CFARVEC_AREA_CACHE", str(tmp_path_factory.getbasetemp() / "area-cache"))
+
+
 DET = {"kind": "ca", "ref_cells_per_side": 4, "guard_cells_per_side": 1, "design_pfa": 1e-3}
 
 
