@@ -108,8 +108,6 @@ def options_from_args(args: argparse.Namespace) -> dict:
 
 def run(args: argparse.Namespace) -> int:
     """Run ``cfarvec study``; returns the exit code (0)."""
-    from pathlib import Path
-
     from refmodel.block_spec import load_spec
     from refmodel.errors import require
     from refmodel.study.quant_study import run_study, study_config

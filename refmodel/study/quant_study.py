@@ -89,7 +89,7 @@ from ..spec_fields import choice, choice_list, integer, integer_list, number, nu
 from ..fixedpoint.exact_pfa import trigger_law
 from ..fixedpoint.fixed_arith import ROUNDING_MODES
 from ..fixedpoint.input_quantiser import CONVERTERS, clip_rate
-from .retune import RETUNE_MODES, retune_constant, spec_with_constant
+from .retune import RETUNE_MODES, retune_constant
 from .window_trials import clopper_pearson, run_trials
 
 __all__ = [

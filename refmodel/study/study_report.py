@@ -40,7 +40,7 @@ import numpy as np
 
 from .. import threshold_design as td
 from ..output_folder import staged_folder
-from .quant_study import AXES, CONSTANTS, StudyResult
+from .quant_study import AXES, StudyResult
 
 __all__ = ["edge_warnings", "no_effect_axes", "non_monotone_notes", "pareto_front", "reference_row", "write_report"]
 
