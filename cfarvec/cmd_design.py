@@ -75,6 +75,9 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
         metavar="LIST",
         help="target models to report, comma-separated: 0 (non-fluctuating), 1 (Swerling I) (default: 0,1)",
     )
+    p.add_argument("--retune-constant", choices=("closest-not-above", "closest"), metavar="MODE", default=None,
+                   help="with --spec: also choose the constant A on the quantised pipeline's exact Pfa "
+                        "(closest-not-above or closest to the design Pfa; docs/quantisation-study.md)")
     p.add_argument("--json", action="store_true", help="print one JSON object instead of text")
     p.set_defaults(func=run)
     return p
@@ -104,6 +107,9 @@ def build_report(args: argparse.Namespace) -> dict:
     spec = None
     kind, n_ref, rank, pfa, alpha = args.detector, args.ref_cells_total, args.rank, args.pfa, args.alpha
     snr_db = number_list("--snr-db", args.snr_db)
+    retune = getattr(args, "retune_constant", None)
+    if retune is not None and args.spec is None:
+        raise SpecError("--retune-constant", "given without --spec", "--spec FILE (the constant is a block's)")
     swerling = integer_list("--swerling", args.swerling, 0, 1)
     if args.spec is not None:
         given = [o for o, v in (("--ref-cells-total", n_ref), ("--rank", rank), ("--pfa", pfa), ("--alpha", alpha))
@@ -132,6 +138,8 @@ def build_report(args: argparse.Namespace) -> dict:
     report = d.to_dict()
     if spec is not None:
         report["fixed"] = fixed_report(spec)
+        if retune is not None:
+            report["fixed"]["retuned"] = retuned_report(spec, retune)
         if getattr(spec, "is_map", False):  # range-Doppler block: refmodel/map_spec.py
             report["map"] = spec.design_report()
     return report
@@ -185,6 +193,47 @@ def fixed_report(spec: "BlockSpec") -> dict:
     }
 
 
+def retuned_report(spec: "BlockSpec", mode: str) -> dict:
+    """The constant A re-tuned to the exact Pfa of the quantised pipeline (:mod:`refmodel.study.retune`).
+
+    Matched at the first noise level of the spec's study (``study.noise_level_lsb``,
+    default ``2**floor(input_bits / 2)`` LSBs), beside the rounded constant.
+    """
+    from refmodel import threshold_design as td
+    from refmodel.map_spec import interior_twin
+    from refmodel.study.quant_study import study_config
+    from refmodel.study.retune import retune_constant
+
+    interior = interior_twin(spec)
+    design_pfa = spec.design_pfa if spec.design_pfa is not None else td.pfa_from_alpha(
+        spec.kind, spec.n_ref, spec.alpha, spec.rank)
+    noise = study_config(interior).axes["noise_level_lsb"][0]
+    data = interior.to_dict(resolved=True)
+    data.pop("study", None)
+    r = retune_constant(interior, data, noise, design_pfa, mode)
+    return {"mode": mode, "noise_lsb": noise, "alpha_int": r.alpha_int,
+            "alpha_digits_signed": [[sign, power] for sign, power in r.spec.alpha_digits],
+            "realised_alpha": r.spec.realised_alpha, "exact_pfa": r.pfa, "error_bound": r.pfa_bound,
+            "over_design_pfa": r.pfa / design_pfa, "met": r.met, "rounded_alpha_int": r.alpha_int_rounded,
+            "rounded_exact_pfa": r.pfa_rounded, "rounded_over_design_pfa": r.pfa_rounded / design_pfa,
+            "threshold_bits": r.spec.threshold_bits}
+
+
+def _text_retuned(f: dict) -> list[str]:
+    if "retuned" not in f:
+        return []
+    t = f["retuned"]
+    digits = " ".join(f"{'+' if s > 0 else '-'}2^{p}" for s, p in t["alpha_digits_signed"])
+    return [
+        f"  re-tuned A        {t['alpha_int']}  ({t['mode']}, noise {t['noise_lsb']:g} LSB; rounding gives "
+        f"{t['rounded_alpha_int']})",
+        f"  its digits        {len(t['alpha_digits_signed'])}: {digits}",
+        f"  its exact Pfa     {t['exact_pfa']:.6e}  (ratio {t['over_design_pfa']:.4f}; rounded A: ratio "
+        f"{t['rounded_over_design_pfa']:.4f}){'' if t['met'] else '  -- no constant tried meets the mode'}",
+        f"  its alpha         {t['realised_alpha']:.10g}  (threshold width {t['threshold_bits']} bits)",
+    ]
+
+
 def _text_fixed(r: dict) -> list[str]:
     if "fixed" not in r:
         return []
@@ -204,6 +253,7 @@ def _text_fixed(r: dict) -> list[str]:
         f"{f['product_bits']}, threshold {f['threshold_bits']}, output word {f['output_bits']} bits",
         f"  rounding          drops {f['drop_bits']} bits (mean shift {f['mean_shift']})",
         f"  timing            latency {f['latency_cycles']} cycles, drain {f['drain_cycles']} cycles per frame",
+        *_text_retuned(f),
     ]
 
 

@@ -21,7 +21,9 @@ Synthesise the reference Verilog core (hdl_tb/rtl/cfar_stream.v) with the
 parameters of SPEC using Yosys, flattened and out of context, and print its
 cell counts: LUTs, flip-flops, DSP blocks, carry cells, shift-register LUTs
 (SRLs), simple gates and the total. Flows: generic (Yosys 'synth': simple
-gates and flip-flops, no LUTs) and xilinx (7-series primitives). A netlist
+gates and flip-flops, no LUTs), ice40 (iCE40 LUT4s, carries, flip-flops, block
+RAM) and xilinx (7-series primitives); --json adds block RAMs, LUT RAMs and
+memory bits. A netlist
 with latches is refused. Exit status 0: counts printed; 1: Yosys failed;
 2: bad input (a bad spec, Yosys not installed). With --rtl
 your module is synthesised instead (top module: --top or ports.module of

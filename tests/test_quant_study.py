@@ -51,6 +51,12 @@ def write_spec(tmp_path: Path, kind="ca", pfa=1e-4, study="") -> Path:
     return p
 
 
+@pytest.fixture(autouse=True)
+def _area_cache(tmp_path_factory, monkeypatch):
+    """Synthesis results go to a test cache, never to the user's (hdl_tb.area_cost.CACHE_ENV)."""
+    monkeypatch.setenv("CFARVEC_AREA_CACHE", str(tmp_path_factory.getbasetemp() / "area-cache"))
+
+
 def run_cli(argv, capsys):
     code = main(argv)
     out, err = capsys.readouterr()
@@ -72,7 +78,9 @@ def test_sweep_values_lists_ranges_and_toml(tmp_path):
     cfg = qs.study_config(spec, {"input_bits": "4:8:2,12", "alpha_frac_bits": "10:12"})
     assert cfg.axes["input_bits"] == (4, 6, 8, 12)
     assert cfg.axes["alpha_frac_bits"] == (10, 11, 12)
-    assert cfg.swept == ("input_bits", "alpha_frac_bits", "rounding")
+    # The constant axis runs every point with A rounded and re-tuned unless told otherwise.
+    assert cfg.swept == ("input_bits", "alpha_frac_bits", "rounding", "constant")
+    assert cfg.axes["constant"] == ("rounded", "retuned")
     assert cfg.design_pfa == 1e-4
 
 
@@ -119,12 +127,27 @@ def test_width_too_small_for_the_design_names_the_sweep_field(tmp_path):
     assert exc.value.field == "--alpha-frac-bits"
 
 
+def test_issue14_single_alpha_frac_bits_error_names_that_option(tmp_path):
+    """Issue 14 item 4: `--alpha-frac-bits 0` (one value, not swept) made an error naming study.input_bits."""
+    spec = load_spec(write_spec(tmp_path, pfa=0.1))
+    cfg = qs.study_config(spec, {"alpha_frac_bits": "0"})
+    with pytest.raises(SpecError, match="quantises to 0") as exc:
+        qs.sweep_points(spec, cfg)
+    assert exc.value.field == "--alpha-frac-bits"
+    # The same value from [study] names the [study] field.
+    spec = load_spec(write_spec(tmp_path, pfa=0.1, study="alpha_frac_bits = 0\ninput_bits = [8, 10]"))
+    with pytest.raises(SpecError) as exc:
+        qs.sweep_points(spec, qs.study_config(spec))
+    assert exc.value.field == "study.alpha_frac_bits"
+
+
 def test_noise_level_tracks_the_input_width(tmp_path):
     """'track': the same analog noise seen through a word 2 bits narrower sits 4 times lower in LSBs."""
     spec = load_spec(write_spec(tmp_path))
-    pts = qs.sweep_points(spec, qs.study_config(spec, {"input_bits": "14,16"}))
+    pts = qs.sweep_points(spec, qs.study_config(spec, {"input_bits": "14,16", "constant": "rounded"}))
     assert [p.noise_lsb for p in pts] == [32.0, 128.0]
-    pts = qs.sweep_points(spec, qs.study_config(spec, {"input_bits": "14,16", "noise_scaling": "fixed"}))
+    pts = qs.sweep_points(spec, qs.study_config(spec, {"input_bits": "14,16", "noise_scaling": "fixed",
+                                                       "constant": "rounded"}))
     assert [p.noise_lsb for p in pts] == [128.0, 128.0]
 
 
@@ -139,7 +162,7 @@ def _study(kind, options, rank=None, workers=1, **kw):
         det["rank"] = rank
     spec = spec_from_dict({"detector": det, "fixed": {"input_bits": 16, "alpha_frac_bits": 12,
                                                       "threshold_frac_bits": 2}})
-    cfg = qs.study_config(spec, {"mc_trials": 0, **options})
+    cfg = qs.study_config(spec, {"mc_trials": 0, "constant": "rounded", **options})
     return qs.run_study(spec, cfg, workers=workers, progress=False, **kw)
 
 
@@ -303,7 +326,9 @@ def test_cli_writes_the_report(tmp_path, capsys):
     assert sorted(p.name for p in out.iterdir()) == sorted(FILES)
     with open(out / "points.csv", newline="") as fh:
         rows = list(csv.DictReader(fh))
-    assert [int(r["input_bits"]) for r in rows] == [8, 12]
+    assert [int(r["input_bits"]) for r in rows] == [8, 8, 12, 12]
+    assert [r["constant"] for r in rows] == ["rounded", "retuned"] * 2
+    assert all(float(r["area_luteq"]) > 0 for r in rows)
     assert {"pfa_exact", "mc_ci_low", "mc_ci_high", "loss_sw0_db", "loss_sw1_db", "saturation_rate",
             "clip_rate_noise", "thr_err_total_rms_lsb", "pd_fixed_sw0_10dB", "pd_float_sw1_16dB"} <= set(rows[0])
     summary = (out / "summary.md").read_text()

@@ -207,7 +207,8 @@ def _fold(lp: np.ndarray, n: int, theta: float | None) -> tuple[np.ndarray, np.n
 # --------------------------------------------------------------------------
 
 
-def statistic_law(spec: BlockSpec, noise_lsb: float, pfa_hint: float = 1e-6) -> tuple[np.ndarray, np.ndarray, float]:
+def statistic_law(spec: BlockSpec, noise_lsb: float, pfa_hint: float = 1e-6,
+                  converter: str = "floor") -> tuple[np.ndarray, np.ndarray, float]:
     """Exact law of the integer noise statistic S for noise-only reference cells.
 
     Parameters
@@ -219,6 +220,8 @@ def statistic_law(spec: BlockSpec, noise_lsb: float, pfa_hint: float = 1e-6) -> 
     pfa_hint : float
         Smallest probability of interest; the input law is truncated so that
         the dropped mass is below ``1e-12 * pfa_hint``.
+    converter : {"floor", "round"}
+        Input converter (:mod:`refmodel.fixedpoint.input_quantiser`).
 
     Returns
     -------
@@ -237,7 +240,7 @@ def statistic_law(spec: BlockSpec, noise_lsb: float, pfa_hint: float = 1e-6) -> 
     n_cells = spec.n_ref
     tail = TAIL_REL * min(pfa_hint, 1.0) / n_cells
     k_max = support_limit(noise_lsb, spec.input_bits, tail)
-    lp, dropped_one = log_noise_pmf(noise_lsb, spec.input_bits, k_max)
+    lp, dropped_one = log_noise_pmf(noise_lsb, spec.input_bits, k_max, converter)
     dropped = min(1.0, n_cells * dropped_one)
     r = spec.ref_per_side
     theta = -spec.realised_alpha / (spec.mean_divisor * noise_lsb)
@@ -265,7 +268,7 @@ def statistic_law(spec: BlockSpec, noise_lsb: float, pfa_hint: float = 1e-6) -> 
         return p, b, dropped
     # os: k-th smallest of 2R cells, cdf I_F(k, N-k+1), complement I_G(N-k+1, k)  [3]
     k, n = spec.rank, n_cells
-    f, g = noise_cdf(noise_lsb, spec.input_bits, k_max)
+    f, g = noise_cdf(noise_lsb, spec.input_bits, k_max, converter)
     h = special.betainc(k, n - k + 1, f)
     hc = special.betainc(n - k + 1, k, g)
     h_prev = np.concatenate([[0.0], h[:-1]])
@@ -318,6 +321,8 @@ class TriggerLaw:
         statistics of probability at least 1e-12.
     noise_lsb : float
     input_bits : int
+    converter : {"floor", "round"}
+        Input converter of the CUT word (:mod:`refmodel.fixedpoint.input_quantiser`).
     """
 
     words: np.ndarray
@@ -330,6 +335,7 @@ class TriggerLaw:
     arith_err_max_lsb: float
     noise_lsb: float
     input_bits: int
+    converter: str = "floor"
 
     def detection_probability(self, snr: float = 0.0, swerling: int = 1) -> float:
         """Equation (1): P(CUT word >= c(S)) for a CUT of noise (``snr = 0``) or a target in noise.
@@ -349,10 +355,10 @@ class TriggerLaw:
         below 4e-8); the Pfa (``snr = 0``) uses every word and exact values.
         """
         if snr == 0.0:
-            sf = word_sf(self.words, self.noise_lsb, self.input_bits)
+            sf = word_sf(self.words, self.noise_lsb, self.input_bits, converter=self.converter)
             return float(_dot(self.mass, sf))
         words, mass = self._pd_support()
-        sf = word_sf_smooth(words, self.noise_lsb, self.input_bits, snr, swerling)
+        sf = word_sf_smooth(words, self.noise_lsb, self.input_bits, snr, swerling, converter=self.converter)
         return float(_dot(mass, sf))
 
     def _pd_support(self) -> tuple[np.ndarray, np.ndarray]:
@@ -369,7 +375,7 @@ class TriggerLaw:
 
     def pfa_error_bound(self) -> float:
         """Bound on the absolute error of :meth:`pfa`: round-off plus truncation."""
-        sf = word_sf(self.words, self.noise_lsb, self.input_bits)
+        sf = word_sf(self.words, self.noise_lsb, self.input_bits, converter=self.converter)
         return float(_dot(self.err, sf)) + self.dropped
 
     def pd(self, snr_db: float, swerling: int) -> float:
@@ -382,7 +388,8 @@ class TriggerLaw:
         return float(self.mass[self.words <= top].sum())
 
 
-def trigger_law(spec: BlockSpec, noise_lsb: float, pfa_hint: float | None = None) -> TriggerLaw:
+def trigger_law(spec: BlockSpec, noise_lsb: float, pfa_hint: float | None = None,
+                converter: str = "floor") -> TriggerLaw:
     """Law of the trigger word for noise-only reference cells at ``noise_lsb``.
 
     Parameters
@@ -393,6 +400,8 @@ def trigger_law(spec: BlockSpec, noise_lsb: float, pfa_hint: float | None = None
         Noise level, mean power in input LSBs (> 0).
     pfa_hint : float, optional
         Smallest probability of interest (default: the spec's design Pfa, else 1e-6).
+    converter : {"floor", "round"}
+        Input converter (:mod:`refmodel.fixedpoint.input_quantiser`; default floor).
 
     Returns
     -------
@@ -407,7 +416,7 @@ def trigger_law(spec: BlockSpec, noise_lsb: float, pfa_hint: float | None = None
     ok = isinstance(noise_lsb, (int, float)) and math.isfinite(noise_lsb) and noise_lsb > 0
     require(ok, "noise_level_lsb", f"got {noise_lsb!r}", "a finite number of LSBs > 0")
     hint = pfa_hint if pfa_hint is not None else (spec.design_pfa or 1e-6)
-    p, b, dropped = statistic_law(spec, float(noise_lsb), hint)
+    p, b, dropped = statistic_law(spec, float(noise_lsb), hint, converter)
     s = np.arange(p.size, dtype=np.int64)
     t0 = scale_product(s, spec.alpha_int, spec.drop_bits, spec.rounding, spec.truncate_partials)
     t = spec.threshold_from_statistic(s)
@@ -432,4 +441,4 @@ def trigger_law(spec: BlockSpec, noise_lsb: float, pfa_hint: float | None = None
         mass = np.bincount(inv, weights=p, minlength=words.size)
         berr = np.bincount(inv, weights=b, minlength=words.size)
     return TriggerLaw(words.astype(np.int64), mass, berr, dropped, saturation, mean, rms, emax,
-                      float(noise_lsb), spec.input_bits)
+                      float(noise_lsb), spec.input_bits, converter)

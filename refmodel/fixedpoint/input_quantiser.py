@@ -21,6 +21,13 @@ in LSBs). A cell holding a target of per-cell SNR ``snr`` (linear) has
 Because the word is a floor, ``P(x >= c) = P(y >= c)`` for ``1 <= c <=
 2**W_in - 1``; every probability here comes from that survival function.
 
+A second converter, ``converter="round"`` (round to nearest, ties up), gives
+``x = min(floor(y + 1/2), 2**W_in - 1)``, so ``P(x >= c) = P(y >= c - 1/2)``
+for ``1 <= c <= 2**W_in - 1``: every function here takes ``converter`` and
+shifts the survival function by the converter's offset (:data:`CONVERTERS`:
+0 for ``floor``, 1/2 for ``round``). Flooring removes half an LSB from every
+cell on average; rounding removes that bias. The default is ``floor``.
+
 References
 ----------
 .. [1] M. A. Richards, *Fundamentals of Radar Signal Processing*,
@@ -43,8 +50,11 @@ from ..errors import require
 
 #: Knots per noise level of the Hermite interpolation in :func:`word_sf_smooth`.
 HERMITE_KNOTS_PER_LEVEL = 16
+#: Input converters and the offset each adds to the power before the floor.
+CONVERTERS = {"floor": 0.0, "round": 0.5}
 
 __all__ = [
+    "CONVERTERS",
     "clip_rate",
     "log_noise_pmf",
     "noise_cdf",
@@ -61,6 +71,11 @@ def _top(input_bits: int) -> int:
     return (1 << input_bits) - 1
 
 
+def _offset(converter: str) -> float:
+    require(converter in CONVERTERS, "input_converter", f"got {converter!r}", ", ".join(CONVERTERS))
+    return CONVERTERS[converter]
+
+
 def _check(mean_lsb: float, input_bits: int) -> None:
     require(isinstance(input_bits, int) and 1 <= input_bits <= 32, "input_bits", f"got {input_bits!r}",
             "an integer 1..32")
@@ -68,8 +83,8 @@ def _check(mean_lsb: float, input_bits: int) -> None:
     require(ok, "noise_level_lsb", f"got {mean_lsb!r}", "a finite number of LSBs > 0")
 
 
-def quantise_power(y, input_bits: int, out: np.ndarray | None = None) -> np.ndarray:
-    """Input words from square-law powers in LSB units: ``min(floor(y), 2**W_in - 1)``.
+def quantise_power(y, input_bits: int, out: np.ndarray | None = None, converter: str = "floor") -> np.ndarray:
+    """Input words from square-law powers in LSB units: ``min(floor(y + offset), 2**W_in - 1)``.
 
     Parameters
     ----------
@@ -79,6 +94,8 @@ def quantise_power(y, input_bits: int, out: np.ndarray | None = None) -> np.ndar
         Input word width ``W_in``.
     out : numpy.ndarray of float64, optional
         Where to write the words (may be ``y`` itself, for in-place use).
+    converter : {"floor", "round"}
+        Offset 0 (floor) or 1/2 (round to nearest, ties up).
 
     Returns
     -------
@@ -86,6 +103,10 @@ def quantise_power(y, input_bits: int, out: np.ndarray | None = None) -> np.ndar
         The words, as exact integers held in float64 (exact below 2**53).
     """
     y = np.asarray(y, dtype=np.float64)
+    off = _offset(converter)
+    if off:
+        out = np.add(y, off, out=out)
+        y = out
     out = np.floor(y, out=out)
     return np.minimum(out, float(_top(input_bits)), out=out)
 
@@ -102,7 +123,8 @@ def support_limit(mean_lsb: float, input_bits: int, tail: float) -> int:
     return int(min(_top(input_bits), max(k, 1)))
 
 
-def log_noise_pmf(mean_lsb: float, input_bits: int, k_max: int | None = None) -> tuple[np.ndarray, float]:
+def log_noise_pmf(mean_lsb: float, input_bits: int, k_max: int | None = None,
+                  converter: str = "floor") -> tuple[np.ndarray, float]:
     """Natural log of the noise word's probability mass function, words ``0 .. K``.
 
     Parameters
@@ -126,38 +148,46 @@ def log_noise_pmf(mean_lsb: float, input_bits: int, k_max: int | None = None) ->
     For exponential ``y`` of mean ``m``, ``P(x = k) = exp(-k/m) (1 - exp(-1/m))``
     below the top word and ``P(x = top) = exp(-top/m)`` (everything from
     ``top`` up clips there) [1]_. In logs, ``-k/m + ln(-expm1(-1/m))``: no
-    underflow and full relative accuracy for every ``k``.
+    underflow and full relative accuracy for every ``k``. With the ``round``
+    converter (offset ``h = 1/2``) ``P(x = 0) = 1 - exp(-h/m)`` and ``k``
+    becomes ``k - h`` in the other words.
 
     References
     ----------
     .. [1] Richards, Fundamentals of Radar Signal Processing, 2005, ch. 6.
     """
     _check(mean_lsb, input_bits)
+    h = _offset(converter)
     top = _top(input_bits)
     k_max = top if k_max is None else int(min(k_max, top))
     k = np.arange(k_max + 1, dtype=np.float64)
-    lp = -k / mean_lsb + math.log(-math.expm1(-1.0 / mean_lsb))
+    lp = -(k - h) / mean_lsb + math.log(-math.expm1(-1.0 / mean_lsb))
+    if h:
+        lp[0] = math.log(-math.expm1(-h / mean_lsb))
     if k_max == top:
-        lp[-1] = -top / mean_lsb
+        lp[-1] = -(top - h) / mean_lsb
         dropped = 0.0
     else:
-        dropped = math.exp(-(k_max + 1) / mean_lsb)
+        dropped = math.exp(-(k_max + 1 - h) / mean_lsb)
     return lp, dropped
 
 
-def noise_pmf(mean_lsb: float, input_bits: int, k_max: int | None = None) -> tuple[np.ndarray, float]:
+def noise_pmf(mean_lsb: float, input_bits: int, k_max: int | None = None,
+              converter: str = "floor") -> tuple[np.ndarray, float]:
     """Probability mass function of the noise word, words ``0 .. K`` (see :func:`log_noise_pmf`)."""
-    lp, dropped = log_noise_pmf(mean_lsb, input_bits, k_max)
+    lp, dropped = log_noise_pmf(mean_lsb, input_bits, k_max, converter)
     return np.exp(lp), dropped
 
 
-def noise_cdf(mean_lsb: float, input_bits: int, k_max: int | None = None) -> tuple[np.ndarray, np.ndarray]:
+def noise_cdf(mean_lsb: float, input_bits: int, k_max: int | None = None,
+              converter: str = "floor") -> tuple[np.ndarray, np.ndarray]:
     """``P(x <= k)`` and ``P(x > k)`` of the noise word for ``k = 0 .. K``, both to full relative accuracy.
 
     Notes
     -----
     ``P(x > k) = P(y >= k + 1) = exp(-(k+1)/m)`` below the top word (0 at
-    the top), ``P(x <= k) = -expm1(-(k+1)/m)`` [1]_.
+    the top), ``P(x <= k) = -expm1(-(k+1)/m)`` [1]_; ``k + 1 - 1/2`` for the
+    ``round`` converter.
 
     References
     ----------
@@ -166,7 +196,7 @@ def noise_cdf(mean_lsb: float, input_bits: int, k_max: int | None = None) -> tup
     _check(mean_lsb, input_bits)
     top = _top(input_bits)
     k_max = top if k_max is None else int(min(k_max, top))
-    k1 = np.arange(1, k_max + 2, dtype=np.float64)
+    k1 = np.arange(1, k_max + 2, dtype=np.float64) - _offset(converter)
     sf = np.exp(-k1 / mean_lsb)
     cdf = -np.expm1(-k1 / mean_lsb)
     if k_max == top:
@@ -182,7 +212,8 @@ def _power_sf(c: np.ndarray, mean_lsb: float, snr: float, swerling: int) -> np.n
     return stats.ncx2.sf(2.0 * c / mean_lsb, 2, 2.0 * snr)
 
 
-def word_sf(c, mean_lsb: float, input_bits: int, snr: float = 0.0, swerling: int = 1) -> np.ndarray:
+def word_sf(c, mean_lsb: float, input_bits: int, snr: float = 0.0, swerling: int = 1,
+            converter: str = "floor") -> np.ndarray:
     """``P(x >= c)`` for integer(s) ``c``: the chance a cell's word reaches ``c``.
 
     Parameters
@@ -197,6 +228,8 @@ def word_sf(c, mean_lsb: float, input_bits: int, snr: float = 0.0, swerling: int
         Linear per-cell SNR of a target in the cell (0: noise only).
     swerling : {0, 1}
         Target model when ``snr > 0``.
+    converter : {"floor", "round"}
+        Input converter (module docstring): ``P(y >= c - offset)``.
 
     Returns
     -------
@@ -218,13 +251,14 @@ def word_sf(c, mean_lsb: float, input_bits: int, snr: float = 0.0, swerling: int
     .. [3] Marcum, IRE Trans. IT-6(2), 1960.
     """
     _check(mean_lsb, input_bits)
+    h = _offset(converter)
     top = _top(input_bits)
     c = np.asarray(c, dtype=np.int64)
     out = np.zeros(c.shape, dtype=np.float64)
     out[c <= 0] = 1.0
     mid = (c >= 1) & (c <= top)
     if np.any(mid):
-        out[mid] = _power_sf(c[mid].astype(np.float64), mean_lsb, snr, swerling)
+        out[mid] = _power_sf(c[mid].astype(np.float64) - h, mean_lsb, snr, swerling)
     return out
 
 
@@ -236,7 +270,7 @@ def _power_density(c: np.ndarray, mean_lsb: float, snr: float) -> np.ndarray:
 
 
 def word_sf_smooth(c, mean_lsb: float, input_bits: int, snr: float, swerling: int = 0,
-                   knots_per_level: int | None = None) -> np.ndarray:
+                   knots_per_level: int | None = None, converter: str = "floor") -> np.ndarray:
     """:func:`word_sf` for many words at once, through cubic Hermite interpolation for Swerling 0.
 
     Parameters
@@ -248,6 +282,8 @@ def word_sf_smooth(c, mean_lsb: float, input_bits: int, snr: float, swerling: in
     knots_per_level : int, optional
         Interpolation knots per noise level (``mean_lsb`` words); default
         :data:`HERMITE_KNOTS_PER_LEVEL`.
+    converter : {"floor", "round"}
+        Input converter (module docstring).
 
     Returns
     -------
@@ -277,8 +313,9 @@ def word_sf_smooth(c, mean_lsb: float, input_bits: int, snr: float, swerling: in
     knots_per_level = knots_per_level or HERMITE_KNOTS_PER_LEVEL
     c = np.asarray(c, dtype=np.int64)
     if swerling != 0 or snr == 0.0 or mean_lsb <= knots_per_level or c.size < 64:
-        return word_sf(c, mean_lsb, input_bits, snr, swerling)
+        return word_sf(c, mean_lsb, input_bits, snr, swerling, converter)
     _check(mean_lsb, input_bits)
+    shift = _offset(converter)
     top = _top(input_bits)
     mid = (c >= 1) & (c <= top)
     out = np.where(c <= 0, 1.0, 0.0)
@@ -288,16 +325,16 @@ def word_sf_smooth(c, mean_lsb: float, input_bits: int, snr: float, swerling: in
     h = mean_lsb / knots_per_level
     n = max(2, int(math.ceil((hi - lo) / h)) + 1)
     if n >= c.size // 2:
-        return word_sf(c, mean_lsb, input_bits, snr, swerling)
-    knots = lo + h * np.arange(n)
+        return word_sf(c, mean_lsb, input_bits, snr, swerling, converter)
+    knots = lo - shift + h * np.arange(n)
     vals = _power_sf(knots, mean_lsb, snr, 0)
     spline = interpolate.CubicHermiteSpline(knots, vals, -_power_density(knots, mean_lsb, snr))
-    out[mid] = np.clip(spline(c[mid].astype(np.float64)), 0.0, 1.0)
+    out[mid] = np.clip(spline(c[mid].astype(np.float64) - shift), 0.0, 1.0)
     return out
 
 
 def word_pmf(mean_lsb: float, input_bits: int, snr: float = 0.0, swerling: int = 1,
-             k_max: int | None = None) -> np.ndarray:
+             k_max: int | None = None, converter: str = "floor") -> np.ndarray:
     """Probability mass function of a cell's word for noise or a target in noise, words ``0 .. K``.
 
     ``P(x = k) = P(x >= k) - P(x >= k + 1)`` from :func:`word_sf`; the top
@@ -307,14 +344,15 @@ def word_pmf(mean_lsb: float, input_bits: int, snr: float = 0.0, swerling: int =
     """
     top = _top(input_bits)
     k_max = top if k_max is None else int(min(k_max, top))
-    sf = word_sf(np.arange(k_max + 2), mean_lsb, input_bits, snr, swerling)
+    sf = word_sf(np.arange(k_max + 2), mean_lsb, input_bits, snr, swerling, converter)
     return np.clip(sf[:-1] - sf[1:], 0.0, None)
 
 
-def clip_rate(mean_lsb: float, input_bits: int, snr: float = 0.0, swerling: int = 1) -> float:
-    """Probability that a cell's power reaches full scale, ``P(y >= 2**W_in)`` (clipped).
+def clip_rate(mean_lsb: float, input_bits: int, snr: float = 0.0, swerling: int = 1,
+              converter: str = "floor") -> float:
+    """Probability that a cell's power reaches full scale, ``P(y + offset >= 2**W_in)`` (clipped).
 
     See :func:`word_sf` for the laws and their references.
     """
     _check(mean_lsb, input_bits)
-    return float(_power_sf(np.array([float(1 << input_bits)]), mean_lsb, snr, swerling)[0])
+    return float(_power_sf(np.array([float(1 << input_bits) - _offset(converter)]), mean_lsb, snr, swerling)[0])

@@ -192,7 +192,7 @@ def _float_estimate(spec: BlockSpec, y: np.ndarray) -> np.ndarray:
 
 
 def run_trials(spec: BlockSpec, noise_lsb: float, trials: int, rng: np.random.Generator,
-               chunk: int = CHUNK_TRIALS) -> TrialCounts:
+               chunk: int = CHUNK_TRIALS, converter: str = "floor") -> TrialCounts:
     """Count false alarms of the fixed pipeline over ``trials`` independent noise-only windows.
 
     Parameters
@@ -206,6 +206,8 @@ def run_trials(spec: BlockSpec, noise_lsb: float, trials: int, rng: np.random.Ge
         Source of the exponential powers (the run is reproducible from its seed).
     chunk : int
         Windows per block.
+    converter : {"floor", "round"}
+        Input converter (:func:`refmodel.fixedpoint.input_quantiser.quantise_power`).
 
     Returns
     -------
@@ -213,7 +215,7 @@ def run_trials(spec: BlockSpec, noise_lsb: float, trials: int, rng: np.random.Ge
     """
     n_cells = spec.n_ref + 1
     top = float((1 << spec.input_bits) - 1)
-    full = float(1 << spec.input_bits)
+    full = float(1 << spec.input_bits) - (0.5 if converter == "round" else 0.0)
     buf = np.empty((chunk, n_cells))
     det_total = sat_total = clip_total = 0
     errs = []
@@ -227,7 +229,7 @@ def run_trials(spec: BlockSpec, noise_lsb: float, trials: int, rng: np.random.Ge
         clip_total += int(np.count_nonzero(b >= full))
         if done < ERROR_TRIALS:
             y = b.copy()
-        quantise_power(b, spec.input_bits, out=b)
+        quantise_power(b, spec.input_bits, out=b, converter=converter)
         stat, t, det = window_decisions(spec, b[:, 0], b[:, 1:])
         det_total += int(np.count_nonzero(det))
         t0 = scale_product(stat, spec.alpha_int, spec.drop_bits, spec.rounding, spec.truncate_partials)
