@@ -145,7 +145,9 @@ def spec_dicts(draw):
                                       "study", "extra"]), names)))
         action = draw(st.sampled_from(["set", "set", "set", "drop", "section"]))
         if action == "drop":
-            data.get(section, {}).pop(key, None)
+            table = data.get(section)
+            if isinstance(table, dict):  # an earlier draw may have replaced the section by a scalar
+                table.pop(key, None)
         elif action == "section":
             data[section] = draw(values)
         else:
