@@ -11,6 +11,8 @@ from __future__ import annotations
 
 import math
 import os
+import subprocess
+import sys
 from fractions import Fraction
 
 import numpy as np
@@ -622,3 +624,14 @@ def test_design_bundle():
     s_ideal = math.log(1e-6) / math.log(0.9) - 1
     s_ca = d.alpha / (32 * (0.9 ** (-1 / 32) - 1)) - 1
     assert sw1.cfar_loss_db == pytest.approx(10 * math.log10(s_ca / s_ideal), abs=1e-7)
+
+
+def test_ca_design_imports_no_scipy_stats_integrate_or_optimize():
+    # issue 15 item 7 (start-up of `cfarvec design`): scipy.stats, scipy.integrate and scipy.optimize
+    # take longer to import than numpy and scipy.special together; a CA design needs none of them
+    code = ("import sys\nfrom refmodel import threshold_design as td\n"
+            "td.design('ca', 32, pfa=1e-6)\ntd.design('ca', 16, alpha=20.0, snr_db=(-3.0, 30.0), loss_pd=0.5)\n"
+            "print(' '.join(sorted(sys.modules)))")
+    mods = set(subprocess.run([sys.executable, "-c", code], check=True, capture_output=True, text=True).stdout.split())
+    assert not {"scipy.stats", "scipy.integrate", "scipy.optimize"} & mods
+    assert "scipy.special" in mods  # the probe did run the design
