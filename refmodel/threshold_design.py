@@ -118,6 +118,11 @@ _SNR_DB_LIMITS = (-200.0, 300.0)
 # Bisection of the required SNR stops when the bracket is this narrow, in dB.
 _SNR_DB_XTOL = 2e-10
 
+# Swerling 0, CA and ideal: Pd is one minus a CDF where Pd is at least this (relative error below about
+# 1e-13), else a Poisson mixture series; CA above this SNR (linear) falls back to quadrature instead.
+_SERIES_BELOW_PD = 1e-3
+_CA_SERIES_MAX_SNR = 1e4
+
 
 #: Parameter descriptions shared by the public functions' docstrings (filled in by _shared_params).
 _PARAMS = {
@@ -415,18 +420,38 @@ def _snr_linear(snr_db: float) -> float:
     return 10.0 ** (snr_db / 10.0)
 
 
+def _poisson_mixture(snr: float, term) -> float:
+    """``sum_j Pois(j; snr) term(j)`` for terms in [0, 1], as a float <= 1.
+
+    The sum runs over ``j < snr + 40 sqrt(snr) + 1000``; by Bernstein's
+    inequality, ``P(J - snr >= u) <= exp(-u^2 / (2 (snr + u/3)))``, the rest of
+    the Poisson mass is below ``exp(-800)``, i.e. nothing in double precision.
+    """
+    j = np.arange(math.ceil(snr + 40.0 * math.sqrt(snr) + 1000.0), dtype=float)
+    if snr <= 0.0:
+        return min(float(term(j[:1])[0]), 1.0)
+    pois = np.exp(j * math.log(snr) - snr - special.gammaln(j + 1.0))
+    return min(float(np.sum(pois * term(j))), 1.0)
+
+
 def _pd_sw0(kind: str, n: int, k: int | None, alpha: float, snr: float) -> float:
     """Swerling 0 Pd of a CFAR detector, P(X > alpha Z).
 
     CA: ``X / Z`` is noncentral F(2, 2N) with noncentrality ``2 SNR`` [10], so
-    Pd is one minus its CDF (``scipy.special.ncfdtr``, Boost). Every kind
-    (and CA where ``ncfdtr`` gives no finite value, SNR above about 187 dB):
+    Pd is one minus its CDF (``scipy.special.ncfdtr``, Boost), or below Pd =
+    1e-3 its survival function as a Poisson mixture of central ones [10].
+    Every other kind (and CA where neither applies: Pd below 1e-3 at an SNR
+    above 1e4, or SNR above about 187 dB where ncfdtr has no finite value):
     Pd = integral f_X(x) P(Z <= x/alpha) dx, f_X the Rician-power density, by quadrature.
     """
     if kind == "ca":
         cdf = float(special.ncfdtr(2.0, 2.0 * n, 2.0 * snr, alpha))
-        if math.isfinite(cdf):
-            return min(max(1.0 - cdf, 0.0), 1.0)
+        if math.isfinite(cdf) and cdf <= 1.0 - _SERIES_BELOW_PD:
+            return 1.0 - cdf
+        if snr <= _CA_SERIES_MAX_SNR:
+            # Small Pd, where 1 - F loses digits: sum_j Pois(j; SNR) I_{N/(N+alpha)}(N, j+1)
+            x = n / (n + alpha)
+            return _poisson_mixture(snr, lambda j: special.betainc(float(n), j + 1.0, x))
 
     from scipy import integrate
 
@@ -492,7 +517,10 @@ def pd(kind: str, n_ref: int, alpha: float, snr_db: float, swerling: int, rank: 
       noncentrality ``2 SNR``, ``2 N Z`` central chi-square with ``2N``, the
       two independent, so ``X / Z`` is noncentral F(2, 2N) with
       noncentrality ``2 SNR`` [4]_ and ``Pd = 1 - F(alpha)``, its CDF from
-      scipy.special.ncfdtr (absolute error near 1e-15).
+      scipy.special.ncfdtr (Boost). Below Pd = 1e-3, where that difference
+      loses digits, Pd is summed as the Poisson mixture ``sum_j Pois(j; SNR)
+      I_{N/(N+alpha)}(N, j+1)`` of central F survival functions [4]_
+      (scipy.special.betainc), every term >= 0; relative error near 1e-13.
     * GO, SO, OS (and CA above about 187 dB, where ncfdtr has no finite
       value): ``integral f_X(x) P(Z <= x / alpha) dx`` with ``f_X(x) =
       exp(-(x + SNR)) I0(2 sqrt(SNR x))``, written in the amplitude offset
@@ -521,12 +549,12 @@ def _ideal_pd(pfa: float, snr: float, swerling: int) -> float:
         return pfa ** (1.0 / (1.0 + snr))
     if snr <= 0:
         return pfa
-    # Q1(a, b) = P(chi'^2(2, b^2) <= a^2) + exp(-(a^2 + b^2) / 2) I0(a b), a^2 = 2 SNR, b^2 = 2 t:
-    # two terms >= 0, no cancellation at small Pd.
     t = -math.log(pfa)
-    rs, rt = math.sqrt(snr), math.sqrt(t)
-    return min(float(special.chndtr(2.0 * snr, 2.0, 2.0 * t)) + math.exp(-((rs - rt) ** 2)) * float(
-        special.i0e(2.0 * rs * rt)), 1.0)
+    cdf = float(special.chndtr(2.0 * t, 2.0, 2.0 * snr))
+    if cdf <= 1.0 - _SERIES_BELOW_PD:
+        return 1.0 - cdf
+    # Small Pd: sum_j Pois(j; SNR) Q(j + 1, t), Q the regularized upper incomplete gamma function
+    return _poisson_mixture(snr, lambda j: special.gammaincc(j + 1.0, t))
 
 
 @_shared_params
@@ -550,16 +578,14 @@ def ideal_pd(pfa: float, snr_db: float, swerling: int) -> float:
     Notes
     -----
     Swerling I: ``Pd = Pfa^(1 / (1 + SNR))`` [1]_, [3]_. Swerling 0:
-    ``Pd = Q1(a, b)`` with ``a = sqrt(2 SNR)``, ``b = sqrt(-2 ln Pfa)`` [2]_,
-    the survival function at ``b^2`` of the noncentral chi-square
-    distribution with 2 degrees of freedom and noncentrality ``a^2`` [4]_.
-    Evaluated by the symmetry relation ``Q1(a, b) + Q1(b, a) = 1 +
-    exp(-(a^2 + b^2) / 2) I0(a b)`` [2]_ (from memory) as ``(1 - Q1(b, a)) +
-    exp(-(a^2 + b^2) / 2) I0(a b)``: the noncentral chi-square CDF at ``a^2``
-    with noncentrality ``b^2`` (scipy.special.chndtr, Boost) plus a Bessel
-    term (scipy.special.i0e), both non-negative, so a small Pd keeps its
-    relative accuracy. Agrees with scipy.stats.ncx2.sf to 1e-12 relative
-    for Pfa down to 1e-14 (tests).
+    ``Pd = Q1(sqrt(2 SNR), sqrt(-2 ln Pfa))`` [2]_, the survival function at
+    ``2t = -2 ln Pfa`` of the noncentral chi-square distribution with 2
+    degrees of freedom and noncentrality ``2 SNR`` [4]_: one minus its CDF
+    (scipy.special.chndtr, Boost), or below Pd = 1e-3, where that difference
+    loses digits, the Poisson mixture ``sum_j Pois(j; SNR) Q(j + 1, t)`` of
+    central ones (Q the regularized upper incomplete gamma function,
+    scipy.special.gammaincc), every term >= 0. Agrees with
+    scipy.stats.ncx2.sf to about 1e-13 relative down to Pfa = 1e-300 (tests).
 
     References
     ----------
@@ -633,9 +659,7 @@ def _ideal_required_snr_db(pfa: float, target: float, sw: int) -> float:
     if sw == 1:
         # Pd = Pfa^(1 / (1 + SNR))  =>  1 + SNR = ln Pfa / ln Pd  [2]
         return _snr_db_of((t + math.log(target)) / -math.log(target), target)
-    # Pd = Q1(sqrt(2 SNR), sqrt(2t)): 2 SNR is the noncentrality at which the noncentral
-    # chi-square CDF at 2t (2 degrees of freedom) is 1 - Pd [7], [10]
-    return _snr_db_of(0.5 * float(special.chndtrinc(2.0 * t, 2.0, 1.0 - target)), target)
+    return _solve_snr_db(lambda s: _ideal_pd(pfa, s, sw), target)
 
 
 @_shared_params
@@ -695,17 +719,15 @@ def ideal_required_snr_db(pfa: float, pd: float, swerling: int) -> float:
 
     Notes
     -----
-    Swerling I: ``1 + SNR = ln Pfa / ln Pd`` [1]_. Swerling 0: ``2 SNR`` is
-    the noncentrality at which the noncentral chi-square distribution with 2
-    degrees of freedom has CDF ``1 - Pd`` at ``-2 ln Pfa`` [2]_, [3]_
-    (scipy.special.chndtrinc, Boost).
+    Swerling I: ``1 + SNR = ln Pfa / ln Pd`` [1]_. Swerling 0: the root of
+    ``ideal_pd(SNR_dB) - pd`` (:func:`ideal_pd`, Marcum [2]_), which increases
+    strictly with SNR, bracketed by 20 dB steps in -200..300 dB and bisected
+    to 1e-10 dB.
 
     References
     ----------
     .. [1] Richards, Fundamentals of Radar Signal Processing, 2005, ch. 6.
     .. [2] Marcum, IRE Trans. IT-6(2), 1960.
-    .. [3] Johnson, Kotz & Balakrishnan, Continuous Univariate Distributions,
-       vol. 2, 2nd ed., 1995, ch. 29.
     """
     p = _check_pfa(pfa)
     return _ideal_required_snr_db(p, _check_pd(pd, p), _check_swerling(swerling))

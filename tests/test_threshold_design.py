@@ -268,10 +268,10 @@ def test_ideal_pd(pfa, snr_db):
     assert got == pytest.approx(stats.rice.sf(math.sqrt(2 * t), math.sqrt(2 * s)), rel=1e-6, abs=1e-12)
 
 
-@pytest.mark.parametrize("pfa", [1e-1, 1e-2, 1e-4, 1e-6, 1e-8, 1e-10, 1e-12, 1e-14])
+@pytest.mark.parametrize("pfa", [1e-1, 1e-2, 1e-4, 1e-6, 1e-8, 1e-10, 1e-14, 1e-50, 1e-150, 1e-300])
 def test_ideal_swerling0_pd_grid_against_ncx2(pfa):
     # Pd = Q1(sqrt(2 SNR), sqrt(2t)) = scipy.stats.ncx2.sf(2t, 2, 2 SNR) (Marcum 1960); the code
-    # goes through the symmetry relation of Q1 with scipy.special.chndtr and i0e instead.
+    # takes 1 - scipy.special.chndtr, or a Poisson mixture series below Pd = 1e-3, instead.
     t = -math.log(pfa)
     for snr_db in np.arange(-40.0, 40.01, 0.5):
         s = 10 ** (snr_db / 10)
@@ -313,6 +313,19 @@ def test_ca_swerling0_pd_grid_against_integration(n_ref, pfa):
     for snr_db in (-10.0, 3.0, 10.0, 13.0, 16.0, 25.0):
         ref = sw0_pd_reference("ca", n_ref, None, alpha, snr_db)
         assert td.pd("ca", n_ref, alpha, snr_db, 0) == pytest.approx(ref, abs=1e-9), snr_db
+
+
+@pytest.mark.parametrize("n_ref", [1, 2, 16, 1000, 1000000])
+@pytest.mark.parametrize("pfa", [1e-6, 1e-14, 1e-50, 1e-300])
+def test_ca_swerling0_small_pd_against_ncf(n_ref, pfa):
+    # X / Z is noncentral F(2, 2N) with noncentrality 2 SNR (Johnson, Kotz & Balakrishnan,
+    # Continuous Univariate Distributions vol. 2, 1995, ch. 30), so Pd = scipy.stats.ncf.sf(alpha, ...);
+    # checked in relative terms where Pd is small (the code sums a Poisson series there)
+    alpha = td.alpha_from_pfa("ca", n_ref, pfa)
+    for snr_db in np.arange(-40.0, 40.01, 2.0):
+        s = 10 ** (snr_db / 10)
+        ref = stats.ncf.sf(alpha, 2, 2 * n_ref, 2 * s)
+        assert td.pd("ca", n_ref, alpha, snr_db, 0) == pytest.approx(ref, rel=1e-9), snr_db
 
 
 @pytest.mark.parametrize("kind", td.KINDS)
@@ -411,6 +424,20 @@ def test_swerling1_required_snr_reaches_pd(kind, pd_):
     # Pd at the solved SNR: E_Z[exp(-alpha Z / (1 + SNR))] (Swerling 1960), integrated with scipy
     assert expect_over_estimate(kind, n_ref, rank, lambda z: math.exp(-alpha * z / (1 + s))) == pytest.approx(
         pd_, abs=1e-9)
+
+
+@pytest.mark.parametrize("pfa,pd_", [(1e-6, 1.0000001e-6), (1e-6, 2e-6), (1e-300, 1e-299), (1e-12, 1 - 1e-12)])
+def test_swerling0_required_snr_at_extreme_pd(pfa, pd_):
+    # Pd at the solved SNR, relative to the target: ideal by scipy.stats.ncx2.sf (Marcum 1960), CA by
+    # scipy.stats.ncf.sf (noncentral F, Johnson, Kotz & Balakrishnan 1995, ch. 30). The bisection
+    # stops within 1e-10 dB, 2.3e-11 relative in SNR; Pd's relative change is that times its
+    # elasticity d ln Pd / d ln SNR, at most a few units here (derivation written here, no source).
+    t = -math.log(pfa)
+    s = 10 ** (td.ideal_required_snr_db(pfa, pd_, 0) / 10)
+    assert stats.ncx2.sf(2 * t, 2, 2 * s) == pytest.approx(pd_, rel=1e-9)
+    alpha = td.alpha_from_pfa("ca", 32, pfa)
+    s = 10 ** (td.required_snr_db("ca", 32, pfa, pd_, 0) / 10)
+    assert stats.ncf.sf(alpha, 2, 64, 2 * s) == pytest.approx(pd_, rel=1e-9)
 
 
 @pytest.mark.parametrize("pfa", [1e-3, 1e-5, 1e-7])
