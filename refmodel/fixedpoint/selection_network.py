@@ -177,19 +177,15 @@ class SelectionKernel:
     def __init__(self, plan: SelectionPlan, rows: int, m: int, dtype: np.dtype):
         self.cells = np.zeros((rows, m + plan.cell_span), dtype=dtype)
         width = m + plan.span
-        # One row: the calls work on 1-D views, which numpy's min/max loops run about a third faster
-        # than the same cells as a (1, n) view.
-        flat = rows == 1
-        cells = self.cells[0] if flat else self.cells
         buffers: list[np.ndarray] = []
         free: list[int] = []
         where: dict[int, tuple[int, int]] = {0: (-1, 0)}  # node -> (buffer index, lo)
 
         def view(ref: Ref, start: int, n: int) -> np.ndarray:
             b, lo = where[ref[0]]
-            arr = cells if b < 0 else buffers[b]
+            arr = self.cells if b < 0 else buffers[b]
             at = start + ref[1] - lo
-            return arr[..., at : at + n]
+            return arr[:, at : at + n]
 
         self._calls = []
         for node, kind, a, b, lo, hi, done in plan.steps:
@@ -198,13 +194,12 @@ class SelectionKernel:
                 idx = free.pop()
             else:
                 idx = len(buffers)
-                buffers.append(np.empty(width if flat else (rows, width), dtype=dtype))
-            out = buffers[idx][..., :n]
+                buffers.append(np.empty((rows, width), dtype=dtype))
+            out = buffers[idx][:, :n]
             self._calls.append((np.minimum if kind == _MIN else np.maximum, view(a, lo, n), view(b, lo, n), out))
             where[node] = (idx, lo)
             free.extend(where[f][0] for f in done)
-        root = view(plan.root, 0, m)
-        self.result = root[None, :] if flat else root
+        self.result = view(plan.root, 0, m)
         self.buffers = len(buffers)
 
     def run(self) -> np.ndarray:
