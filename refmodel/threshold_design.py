@@ -52,6 +52,9 @@ References
    Trans. Information Theory, vol. IT-6, no. 2, pp. 269-308, 1960.
 .. [9] H. A. David and H. N. Nagaraja, *Order Statistics*, 3rd ed., Wiley,
    2003, sec. 2.1 (distribution of a single order statistic).
+.. [10] N. L. Johnson, S. Kotz and N. Balakrishnan, *Continuous Univariate
+   Distributions*, vol. 2, 2nd ed., Wiley, 1995, ch. 29 (noncentral
+   chi-square) and ch. 30 (noncentral F).
 """
 
 from __future__ import annotations
@@ -66,9 +69,9 @@ from scipy import special
 from .errors import SpecError, require
 from .spec_fields import choice, integer, number
 
-# scipy.integrate, scipy.optimize and scipy.stats are imported inside the functions that
-# use them: together they take over a second to import, and the command line should
-# report bad input without paying for them.
+# scipy.integrate and scipy.optimize are imported inside the functions that use them (GO, SO
+# and OS only): together they take about half a second to import, more than scipy.special and
+# numpy together, and CA designs need neither.
 
 __all__ = [
     "KINDS",
@@ -102,7 +105,7 @@ MAX_REF_CELLS = 1_000_000
 # OS Pfa: exact product of log1p terms up to this rank, gamma-function form above.
 _OS_PRODUCT_MAX_RANK = 100_000
 
-# Tail mass of the CUT power left out of the Swerling 0 integral: P(X > x_hi) <= exp(-_TAIL_R).
+# Tail mass of the CUT power left out of the Swerling 0 integral, per side: at most exp(-_TAIL_R).
 _TAIL_R = 42.0
 
 # Integration tolerances of the Swerling 0 Pd (absolute, relative).
@@ -111,6 +114,14 @@ _QUAD_EPSREL = 1e-10
 
 # SNR search range for required_snr_db, in dB (widened step by step up to these limits).
 _SNR_DB_LIMITS = (-200.0, 300.0)
+
+# Bisection of the required SNR stops when the bracket is this narrow, in dB.
+_SNR_DB_XTOL = 2e-10
+
+# Swerling 0, CA and ideal: Pd is one minus a CDF where Pd is at least this (relative error below about
+# 1e-13), else a Poisson mixture series; CA above this SNR (linear) falls back to quadrature instead.
+_SERIES_BELOW_PD = 1e-3
+_CA_SERIES_MAX_SNR = 1e4
 
 
 #: Parameter descriptions shared by the public functions' docstrings (filled in by _shared_params).
@@ -409,37 +420,58 @@ def _snr_linear(snr_db: float) -> float:
     return 10.0 ** (snr_db / 10.0)
 
 
-def _cut_density_sw0(x, snr: float):
-    """Density of the CUT power, non-fluctuating target of power ``snr`` in unit noise.
+def _poisson_mixture(snr: float, term) -> float:
+    """``sum_j Pois(j; snr) term(j)`` for terms in [0, 1], as a float <= 1.
 
-    ``exp(-(x + s)) I0(2 sqrt(s x))``, written with the scaled Bessel function
-    ``i0e`` so that nothing overflows.
+    The sum runs over ``j < snr + 40 sqrt(snr) + 1000``; by Bernstein's
+    inequality, ``P(J - snr >= u) <= exp(-u^2 / (2 (snr + u/3)))``, the rest of
+    the Poisson mass is below ``exp(-800)``, i.e. nothing in double precision.
     """
-    x = np.maximum(x, 0.0)
-    r = np.sqrt(x)
-    rs = math.sqrt(snr)
-    return np.exp(-((r - rs) ** 2)) * special.i0e(2.0 * rs * r)
+    j = np.arange(math.ceil(snr + 40.0 * math.sqrt(snr) + 1000.0), dtype=float)
+    if snr <= 0.0:
+        return min(float(term(j[:1])[0]), 1.0)
+    pois = np.exp(j * math.log(snr) - snr - special.gammaln(j + 1.0))
+    return min(float(np.sum(pois * term(j))), 1.0)
 
 
 def _pd_sw0(kind: str, n: int, k: int | None, alpha: float, snr: float) -> float:
-    """Swerling 0 Pd of a CFAR detector: P(X > alpha Z) by quadrature.
+    """Swerling 0 Pd of a CFAR detector, P(X > alpha Z).
 
-    Pd = integral_0^inf f_X(x) P(Z <= x/alpha) dx, f_X the Rician-power density.
+    CA: ``X / Z`` is noncentral F(2, 2N) with noncentrality ``2 SNR`` [10], so
+    Pd is one minus its CDF (``scipy.special.ncfdtr``, Boost), or below Pd =
+    1e-3 its survival function as a Poisson mixture of central ones [10].
+    Every other kind (and CA where neither applies: Pd below 1e-3 at an SNR
+    above 1e4, or SNR above about 187 dB where ncfdtr has no finite value):
+    Pd = integral f_X(x) P(Z <= x/alpha) dx, f_X the Rician-power density, by quadrature.
     """
+    if kind == "ca":
+        cdf = float(special.ncfdtr(2.0, 2.0 * n, 2.0 * snr, alpha))
+        if math.isfinite(cdf) and cdf <= 1.0 - _SERIES_BELOW_PD:
+            return 1.0 - cdf
+        if snr <= _CA_SERIES_MAX_SNR:
+            # Small Pd, where 1 - F loses digits: sum_j Pois(j; SNR) I_{N/(N+alpha)}(N, j+1)
+            x = n / (n + alpha)
+            return _poisson_mixture(snr, lambda j: special.betainc(float(n), j + 1.0, x))
+
     from scipy import integrate
 
-    rs = math.sqrt(snr)
-    x_hi = (rs + math.sqrt(_TAIL_R)) ** 2  # P(X > x_hi) <= exp(-_TAIL_R)
+    rs, rt = math.sqrt(snr), math.sqrt(_TAIL_R)
+    # In the amplitude u = sqrt(x) = sqrt(SNR) + v the CUT's density is close to a unit Gaussian
+    # in v at any SNR. |sqrt(X) - sqrt(SNR)| <= |w| and P(|w|^2 > r) = exp(-r): outside
+    # [v_lo, v_hi] lies at most 2 exp(-_TAIL_R) of the CUT power's mass.
+    v_lo, v_hi = max(-rs, -rt), rt
     q = np.array([1e-9, 1e-4, 0.05, 0.5, 0.95, 1 - 1e-4, 1 - 1e-9])
-    pts = set(float(v) for v in alpha * _estimate_ppf(kind, n, k, q))
-    pts.update([snr, max(snr - 3 * rs, 0.0), snr + 3 * rs + 1.0])
-    pts = sorted(p for p in pts if 0.0 < p < x_hi and math.isfinite(p))
+    pts = set(float(v) for v in np.sqrt(alpha * _estimate_ppf(kind, n, k, q)) - rs)
+    pts.update([0.0, -3.0, 3.0])
+    pts = sorted(p for p in pts if v_lo < p < v_hi and math.isfinite(p))
 
-    def integrand(x: float) -> float:
-        return float(_cut_density_sw0(x, snr) * _estimate_cdf(kind, n, k, x / alpha))
+    def integrand(v: float) -> float:
+        u = rs + v
+        density = 2.0 * u * math.exp(-v * v) * float(special.i0e(2.0 * rs * u))  # Rice, i0e: no overflow
+        return density * float(_estimate_cdf(kind, n, k, u * u / alpha))
 
     val, _err = integrate.quad(
-        integrand, 0.0, x_hi, points=pts or None, epsabs=_QUAD_EPSABS, epsrel=_QUAD_EPSREL, limit=500
+        integrand, v_lo, v_hi, points=pts or None, epsabs=_QUAD_EPSABS, epsrel=_QUAD_EPSREL, limit=500
     )
     return min(max(val, 0.0), 1.0)
 
@@ -479,19 +511,35 @@ def pd(kind: str, n_ref: int, alpha: float, snr_db: float, swerling: int, rank: 
 
     Swerling 0: given the noise estimate, ``P(X > t) = Q1(sqrt(2 SNR),
     sqrt(2 t))`` (Marcum Q [2]_). Pd is its average over the distribution of
-    the noise estimate (:func:`noise_estimate_cdf`), computed as
-    ``integral f_X(x) P(Z <= x / alpha) dx`` with ``f_X(x) = exp(-(x + SNR))
-    I0(2 sqrt(SNR x))`` by adaptive Gauss-Kronrod quadrature
-    (scipy.integrate.quad) on ``[0, (sqrt(SNR) + sqrt(42))^2]`` with
-    breakpoints at quantiles of ``alpha Z``. Absolute error below 1e-9
-    (tolerances 1e-13 absolute, 1e-10 relative; the cut tail holds at most
-    ``exp(-42)``).
+    the noise estimate (:func:`noise_estimate_cdf`).
+
+    * CA: ``2X`` is noncentral chi-square with 2 degrees of freedom and
+      noncentrality ``2 SNR``, ``2 N Z`` central chi-square with ``2N``, the
+      two independent, so ``X / Z`` is noncentral F(2, 2N) with
+      noncentrality ``2 SNR`` [4]_ and ``Pd = 1 - F(alpha)``, its CDF from
+      scipy.special.ncfdtr (Boost). Below Pd = 1e-3, where that difference
+      loses digits, Pd is summed as the Poisson mixture ``sum_j Pois(j; SNR)
+      I_{N/(N+alpha)}(N, j+1)`` of central F survival functions [4]_
+      (scipy.special.betainc), every term >= 0. Both agree with
+      scipy.stats.ncf.sf to 1e-9 relative in the tests (5e-11 seen).
+    * GO, SO, OS, and CA where neither applies (Pd below 1e-3 at an SNR
+      above 40 dB, or above about 187 dB, where ncfdtr has no finite value):
+      ``integral f_X(x) P(Z <= x / alpha) dx`` with ``f_X(x) = exp(-(x +
+      SNR)) I0(2 sqrt(SNR x))``, written in the amplitude offset ``v =
+      sqrt(x) - sqrt(SNR)`` (whose density is close to a unit Gaussian at
+      any SNR), by adaptive Gauss-Kronrod quadrature (scipy.integrate.quad)
+      on ``v`` in ``[max(-sqrt(SNR), -sqrt(42)), sqrt(42)]`` with
+      breakpoints at quantiles of ``sqrt(alpha Z) - sqrt(SNR)``. Absolute
+      error below 1e-9 (tolerances 1e-13 absolute, 1e-10 relative; the two
+      cut tails hold at most ``2 exp(-42)``).
 
     References
     ----------
     .. [1] Richards, Fundamentals of Radar Signal Processing, 2005, ch. 7.
     .. [2] Marcum, IRE Trans. IT-6(2), 1960.
     .. [3] Swerling, IRE Trans. IT-6(2), 1960.
+    .. [4] Johnson, Kotz & Balakrishnan, Continuous Univariate Distributions,
+       vol. 2, 2nd ed., 1995, ch. 29-30.
     """
     kind, n, k = _check_geometry(kind, n_ref, rank)
     a = _check_alpha(alpha)
@@ -500,12 +548,16 @@ def pd(kind: str, n_ref: int, alpha: float, snr_db: float, swerling: int, rank: 
 
 
 def _ideal_pd(pfa: float, snr: float, swerling: int) -> float:
-    from scipy import stats
-
-    t = -math.log(pfa)
     if swerling == 1:
         return pfa ** (1.0 / (1.0 + snr))
-    return float(stats.ncx2.sf(2.0 * t, 2, 2.0 * snr)) if snr > 0 else pfa
+    if snr <= 0:
+        return pfa
+    t = -math.log(pfa)
+    cdf = float(special.chndtr(2.0 * t, 2.0, 2.0 * snr))
+    if cdf <= 1.0 - _SERIES_BELOW_PD:
+        return 1.0 - cdf
+    # Small Pd: sum_j Pois(j; SNR) Q(j + 1, t), Q the regularized upper incomplete gamma function
+    return _poisson_mixture(snr, lambda j: special.gammaincc(j + 1.0, t))
 
 
 @_shared_params
@@ -529,16 +581,22 @@ def ideal_pd(pfa: float, snr_db: float, swerling: int) -> float:
     Notes
     -----
     Swerling I: ``Pd = Pfa^(1 / (1 + SNR))`` [1]_, [3]_. Swerling 0:
-    ``Pd = Q1(sqrt(2 SNR), sqrt(-2 ln Pfa))`` [2]_, evaluated as the
-    survival function of the noncentral chi-square distribution with 2
-    degrees of freedom and noncentrality ``2 SNR`` at ``-2 ln Pfa``
-    (scipy.stats.ncx2.sf).
+    ``Pd = Q1(sqrt(2 SNR), sqrt(-2 ln Pfa))`` [2]_, the survival function at
+    ``2t = -2 ln Pfa`` of the noncentral chi-square distribution with 2
+    degrees of freedom and noncentrality ``2 SNR`` [4]_: one minus its CDF
+    (scipy.special.chndtr, Boost), or below Pd = 1e-3, where that difference
+    loses digits, the Poisson mixture ``sum_j Pois(j; SNR) Q(j + 1, t)`` of
+    central ones (Q the regularized upper incomplete gamma function,
+    scipy.special.gammaincc), every term >= 0. Agrees with
+    scipy.stats.ncx2.sf to about 1e-13 relative down to Pfa = 1e-300 (tests).
 
     References
     ----------
     .. [1] Richards, Fundamentals of Radar Signal Processing, 2005, ch. 6.
     .. [2] Marcum, IRE Trans. IT-6(2), 1960.
     .. [3] Swerling, IRE Trans. IT-6(2), 1960.
+    .. [4] Johnson, Kotz & Balakrishnan, Continuous Univariate Distributions,
+       vol. 2, 2nd ed., 1995, ch. 29.
     """
     p = _check_pfa(pfa)
     s = _snr_linear(_check_snr_db(snr_db))
@@ -550,10 +608,26 @@ def ideal_pd(pfa: float, snr_db: float, swerling: int) -> float:
 # --------------------------------------------------------------------------
 
 
-def _solve_snr_db(pd_of_snr, target: float) -> float:
-    """Solve pd_of_snr(snr) = target for snr in dB; pd_of_snr increases with SNR."""
-    from scipy import optimize
+def _too_close(target: float, to_one: bool) -> SpecError:
+    if to_one:
+        return SpecError("--pd", f"got {target!r}, too close to 1 to resolve", "a Pd well below 1")
+    return SpecError("--pd", f"got {target!r}, too close to Pfa to resolve", "a Pd well above Pfa")
 
+
+def _snr_db_of(snr: float, target: float) -> float:
+    """A solved linear SNR in dB, refused outside the search range."""
+    if not snr > 0.0 or 10.0 * math.log10(snr) < _SNR_DB_LIMITS[0]:
+        raise _too_close(target, False)
+    if not math.isfinite(snr) or 10.0 * math.log10(snr) > _SNR_DB_LIMITS[1]:
+        raise _too_close(target, True)
+    return 10.0 * math.log10(snr)
+
+
+def _solve_snr_db(pd_of_snr, target: float) -> float:
+    """Solve pd_of_snr(snr) = target for snr in dB; pd_of_snr increases with SNR.
+
+    Bracketed by 20 dB steps, then bisected to _SNR_DB_XTOL (about 38 steps from a 60 dB bracket).
+    """
 
     def f(db: float) -> float:
         return pd_of_snr(_snr_linear(db)) - target
@@ -562,19 +636,32 @@ def _solve_snr_db(pd_of_snr, target: float) -> float:
     while f(lo) >= 0.0:
         lo -= 20.0
         if lo < _SNR_DB_LIMITS[0]:
-            raise SpecError("--pd", f"got {target!r}, too close to Pfa to resolve", "a Pd well above Pfa")
+            raise _too_close(target, False)
     while f(hi) <= 0.0:
         hi += 20.0
         if hi > _SNR_DB_LIMITS[1]:
-            raise SpecError("--pd", f"got {target!r}, too close to 1 to resolve", "a Pd well below 1")
-    return optimize.brentq(f, lo, hi, xtol=1e-9, rtol=1e-12, maxiter=200)
+            raise _too_close(target, True)
+    while hi - lo > _SNR_DB_XTOL:
+        mid = 0.5 * (lo + hi)
+        if f(mid) < 0.0:
+            lo = mid
+        else:
+            hi = mid
+    return 0.5 * (lo + hi)
 
 
 def _required_snr_db(kind: str, n: int, k: int | None, alpha: float, target: float, sw: int) -> float:
+    if sw == 1:
+        # Pd = Pfa(alpha / (1 + SNR)) [2], [8], so alpha / (1 + SNR) is the alpha whose Pfa is the target
+        return _snr_db_of(alpha / _alpha_from_pfa(kind, n, target, k) - 1.0, target)
     return _solve_snr_db(lambda s: _pd(kind, n, k, alpha, s, sw), target)
 
 
 def _ideal_required_snr_db(pfa: float, target: float, sw: int) -> float:
+    t = -math.log(pfa)
+    if sw == 1:
+        # Pd = Pfa^(1 / (1 + SNR))  =>  1 + SNR = ln Pfa / ln Pd  [2]
+        return _snr_db_of((t + math.log(target)) / -math.log(target), target)
     return _solve_snr_db(lambda s: _ideal_pd(pfa, s, sw), target)
 
 
@@ -602,12 +689,14 @@ def required_snr_db(
 
     Notes
     -----
-    Brent's method [1]_ (scipy.optimize.brentq) on ``Pd(SNR_dB) - pd``, which
-    increases strictly with SNR; absolute tolerance 1e-9 dB.
+    Swerling I: ``Pd = Pfa(alpha / (1 + SNR))`` [1]_, so ``1 + SNR =
+    alpha / alpha_from_pfa(Pd)``, exact (for CA ``alpha / (N (Pd^(-1/N) -
+    1))``). Swerling 0: ``Pd(SNR_dB) - pd`` increases strictly with SNR; its
+    root is bracketed by 20 dB steps in -200..300 dB and bisected to 1e-10 dB.
 
     References
     ----------
-    .. [1] {brent}
+    .. [1] Richards, Fundamentals of Radar Signal Processing, 2005, ch. 7.
     """
     kind, n, k = _check_geometry(kind, n_ref, rank)
     p = _check_pfa(pfa)
@@ -629,11 +718,19 @@ def ideal_required_snr_db(pfa: float, pd: float, swerling: int) -> float:
     Returns
     -------
     float
-        SNR in dB, solved with Brent's method on :func:`ideal_pd` [1]_.
+        SNR in dB.
+
+    Notes
+    -----
+    Swerling I: ``1 + SNR = ln Pfa / ln Pd`` [1]_. Swerling 0: the root of
+    ``ideal_pd(SNR_dB) - pd`` (:func:`ideal_pd`, Marcum [2]_), which increases
+    strictly with SNR, bracketed by 20 dB steps in -200..300 dB and bisected
+    to 1e-10 dB.
 
     References
     ----------
-    .. [1] {brent}
+    .. [1] Richards, Fundamentals of Radar Signal Processing, 2005, ch. 6.
+    .. [2] Marcum, IRE Trans. IT-6(2), 1960.
     """
     p = _check_pfa(pfa)
     return _ideal_required_snr_db(p, _check_pd(pd, p), _check_swerling(swerling))

@@ -11,6 +11,8 @@ from __future__ import annotations
 
 import math
 import os
+import subprocess
+import sys
 from fractions import Fraction
 
 import numpy as np
@@ -266,6 +268,16 @@ def test_ideal_pd(pfa, snr_db):
     assert got == pytest.approx(stats.rice.sf(math.sqrt(2 * t), math.sqrt(2 * s)), rel=1e-6, abs=1e-12)
 
 
+@pytest.mark.parametrize("pfa", [1e-1, 1e-2, 1e-4, 1e-6, 1e-8, 1e-10, 1e-14, 1e-50, 1e-150, 1e-300])
+def test_ideal_swerling0_pd_grid_against_ncx2(pfa):
+    # Pd = Q1(sqrt(2 SNR), sqrt(2t)) = scipy.stats.ncx2.sf(2t, 2, 2 SNR) (Marcum 1960); the code
+    # takes 1 - scipy.special.chndtr, or a Poisson mixture series below Pd = 1e-3, instead.
+    t = -math.log(pfa)
+    for snr_db in np.arange(-40.0, 40.01, 0.5):
+        s = 10 ** (snr_db / 10)
+        assert td.ideal_pd(pfa, snr_db, 0) == pytest.approx(stats.ncx2.sf(2 * t, 2, 2 * s), rel=1e-11), snr_db
+
+
 SW0_CASES = [
     ("ca", 2, 1e-6, 20.0),
     ("ca", 16, 1e-2, 0.0),
@@ -288,6 +300,48 @@ def test_swerling0_pd_against_other_integration_order(kind, n_ref, pfa, snr_db):
     ref = sw0_pd_reference(kind, n_ref, rank, alpha, snr_db)
     # accuracy target 1e-6 absolute (docs/theory.md); checked far tighter here
     assert td.pd(kind, n_ref, alpha, snr_db, 0, rank) == pytest.approx(ref, abs=1e-9)
+
+
+# CA over a grid: the code takes Pd = 1 - F(alpha) with F the noncentral F(2, 2N; 2 SNR) CDF
+# (scipy.special.ncfdtr); the reference integrates the Marcum Q over the estimate (scipy ncx2.sf
+# and the gamma density), the route the code used before. (N = 1 and 2 are among SW0_CASES; here
+# scipy.stats.ncx2.sf raises OverflowError near x = 1e-13 for them at 25 dB.)
+@pytest.mark.parametrize("n_ref", [3, 16, 100, 1000, 100000])
+@pytest.mark.parametrize("pfa", [1e-2, 1e-6, 1e-12])
+def test_ca_swerling0_pd_grid_against_integration(n_ref, pfa):
+    alpha = td.alpha_from_pfa("ca", n_ref, pfa)
+    for snr_db in (-10.0, 3.0, 10.0, 13.0, 16.0, 25.0):
+        ref = sw0_pd_reference("ca", n_ref, None, alpha, snr_db)
+        assert td.pd("ca", n_ref, alpha, snr_db, 0) == pytest.approx(ref, abs=1e-9), snr_db
+
+
+@pytest.mark.parametrize("n_ref", [1, 2, 16, 1000, 1000000])
+@pytest.mark.parametrize("pfa", [1e-6, 1e-14, 1e-50, 1e-300])
+def test_ca_swerling0_small_pd_against_ncf(n_ref, pfa):
+    # X / Z is noncentral F(2, 2N) with noncentrality 2 SNR (Johnson, Kotz & Balakrishnan,
+    # Continuous Univariate Distributions vol. 2, 1995, ch. 30), so Pd = scipy.stats.ncf.sf(alpha, ...);
+    # checked in relative terms where Pd is small (the code sums a Poisson series there)
+    alpha = td.alpha_from_pfa("ca", n_ref, pfa)
+    for snr_db in np.arange(-40.0, 40.01, 2.0):
+        s = 10 ** (snr_db / 10)
+        ref = stats.ncf.sf(alpha, 2, 2 * n_ref, 2 * s)
+        assert td.pd("ca", n_ref, alpha, snr_db, 0) == pytest.approx(ref, rel=1e-9), snr_db
+
+
+@pytest.mark.parametrize("kind", td.KINDS)
+@pytest.mark.parametrize("snr_db", [60.0, 80.0, 100.0, 150.0, 186.0, 200.0, 250.0])
+def test_swerling0_pd_at_very_high_snr(kind, snr_db):
+    n_ref = 32
+    rank = rank_for(kind, n_ref)
+    alpha = td.alpha_from_pfa(kind, n_ref, 1e-6, rank)
+    s = 10 ** (snr_db / 10)
+    # Lower bound written here (no source): with x0 = SNR / 4, Pd >= 1 - P(X <= x0) - P(alpha Z >= x0).
+    # |sqrt(X) - sqrt(SNR)| <= |w| (triangle inequality) and P(|w|^2 > r) = exp(-r) for the unit
+    # complex Gaussian noise, so P(X <= x0) <= exp(-SNR / 4); every estimate is at most the largest
+    # reference cell, so P(Z >= z) <= N exp(-z). Both terms underflow to 0 here (SNR >= 1e6).
+    bound = 1.0 - math.exp(-s / 4) - n_ref * math.exp(-s / (4 * alpha))
+    got = td.pd(kind, n_ref, alpha, snr_db, 0, rank)
+    assert bound - 1e-12 <= got <= 1.0
 
 
 @pytest.mark.parametrize("kind", td.KINDS)
@@ -357,6 +411,33 @@ def test_swerling1_required_snr_and_loss_closed_form(n_ref, pfa, pd_):
     assert td.ideal_required_snr_db(pfa, pd_, 1) == pytest.approx(10 * math.log10(s_ideal), abs=1e-7)
     assert td.required_snr_db("ca", n_ref, pfa, pd_, 1) == pytest.approx(10 * math.log10(s_ca), abs=1e-7)
     assert td.cfar_loss_db("ca", n_ref, pfa, pd_, 1) == pytest.approx(10 * math.log10(s_ca / s_ideal), abs=1e-7)
+
+
+@pytest.mark.parametrize("kind", ["go", "so", "os"])
+@pytest.mark.parametrize("pd_", [0.3, 0.9, 0.999])
+def test_swerling1_required_snr_reaches_pd(kind, pd_):
+    n_ref = 16
+    rank = rank_for(kind, n_ref)
+    snr_db = td.required_snr_db(kind, n_ref, 1e-6, pd_, 1, rank)
+    alpha = td.alpha_from_pfa(kind, n_ref, 1e-6, rank)
+    s = 10 ** (snr_db / 10)
+    # Pd at the solved SNR: E_Z[exp(-alpha Z / (1 + SNR))] (Swerling 1960), integrated with scipy
+    assert expect_over_estimate(kind, n_ref, rank, lambda z: math.exp(-alpha * z / (1 + s))) == pytest.approx(
+        pd_, abs=1e-9)
+
+
+@pytest.mark.parametrize("pfa,pd_", [(1e-6, 1.0000001e-6), (1e-6, 2e-6), (1e-300, 1e-299), (1e-12, 1 - 1e-12)])
+def test_swerling0_required_snr_at_extreme_pd(pfa, pd_):
+    # Pd at the solved SNR, relative to the target: ideal by scipy.stats.ncx2.sf (Marcum 1960), CA by
+    # scipy.stats.ncf.sf (noncentral F, Johnson, Kotz & Balakrishnan 1995, ch. 30). The bisection
+    # stops within 1e-10 dB, 2.3e-11 relative in SNR; Pd's relative change is that times its
+    # elasticity d ln Pd / d ln SNR, at most a few units here (derivation written here, no source).
+    t = -math.log(pfa)
+    s = 10 ** (td.ideal_required_snr_db(pfa, pd_, 0) / 10)
+    assert stats.ncx2.sf(2 * t, 2, 2 * s) == pytest.approx(pd_, rel=1e-9)
+    alpha = td.alpha_from_pfa("ca", 32, pfa)
+    s = 10 ** (td.required_snr_db("ca", 32, pfa, pd_, 0) / 10)
+    assert stats.ncf.sf(alpha, 2, 64, 2 * s) == pytest.approx(pd_, rel=1e-9)
 
 
 @pytest.mark.parametrize("pfa", [1e-3, 1e-5, 1e-7])
@@ -570,3 +651,14 @@ def test_design_bundle():
     s_ideal = math.log(1e-6) / math.log(0.9) - 1
     s_ca = d.alpha / (32 * (0.9 ** (-1 / 32) - 1)) - 1
     assert sw1.cfar_loss_db == pytest.approx(10 * math.log10(s_ca / s_ideal), abs=1e-7)
+
+
+def test_ca_design_imports_no_scipy_stats_integrate_or_optimize():
+    # issue 15 item 7 (start-up of `cfarvec design`): scipy.stats, scipy.integrate and scipy.optimize
+    # take longer to import than numpy and scipy.special together; a CA design needs none of them
+    code = ("import sys\nfrom refmodel import threshold_design as td\n"
+            "td.design('ca', 32, pfa=1e-6)\ntd.design('ca', 16, alpha=20.0, snr_db=(-3.0, 30.0), loss_pd=0.5)\n"
+            "print(' '.join(sorted(sys.modules)))")
+    mods = set(subprocess.run([sys.executable, "-c", code], check=True, capture_output=True, text=True).stdout.split())
+    assert not {"scipy.stats", "scipy.integrate", "scipy.optimize"} & mods
+    assert "scipy.special" in mods  # the probe did run the design
