@@ -102,7 +102,6 @@ def build_report(args: argparse.Namespace) -> dict:
         On any out-of-range option.
     """
     from refmodel import threshold_design as td
-    from refmodel.block_spec import load_spec
 
     spec = None
     kind, n_ref, rank, pfa, alpha = args.detector, args.ref_cells_total, args.rank, args.pfa, args.alpha
@@ -116,6 +115,8 @@ def build_report(args: argparse.Namespace) -> dict:
                  if v is not None]
         if given:
             raise SpecError(given[0], "given together with --spec", "either --spec FILE or the detector options")
+        from refmodel.block_spec import load_spec  # only with --spec: the detector options need no spec module
+
         spec = load_spec(args.spec)
         kind, n_ref, rank = spec.kind, spec.n_ref, spec.rank
         pfa, alpha = (spec.design_pfa, None) if spec.design_pfa is not None else (None, spec.alpha)
