@@ -414,6 +414,7 @@ def _run_cocotb(folder: Path, config: Mapping, mode: str, where: Path, words: in
     with _runner_environment(folder), simulator_environment(simulator):
         runner = get_runner(simulator)
         runner.log.setLevel(logging.CRITICAL)
+
         def build(into: Path, max_words: int | None = None) -> None:
             nonlocal build_log
             build_log = into / "build.log"
@@ -486,18 +487,15 @@ def _run_verilog(folder: Path, config: Mapping, where: Path, words: int, setting
         start, _ = build_verilog_bench(simulator, sources=m["sources"], parameters=m["parameters"], top=VERILOG_TOP,
                                        folder=folder, build=where, waves=waves, flags=flags)
     else:
-        made: list = []
-
         def build(into: Path, max_words: int) -> None:
-            made.append(build_verilog_bench(simulator, sources=m["sources"], top=VERILOG_TOP, folder=folder,
-                                            parameters={**m["parameters"], "MAX_WORDS": max_words}, build=into,
-                                            waves=waves, flags=flags)[0])
+            build_verilog_bench(simulator, sources=m["sources"], parameters={**m["parameters"], "MAX_WORDS": max_words},
+                                top=VERILOG_TOP, folder=folder, build=into, waves=waves, flags=flags)
 
         key = design_key(folder, toplevel=VERILOG_TOP, sources=m["sources"], parameters=m["parameters"], waves=waves,
                          simulator=simulator)
         built_at, _, built_now = shared_build(Path(build_root), f"{VERILOG_TOP}-{simulator}-{key}",
                                               max(words, file_words), build)
-        start = made[0] if made else bench_command(simulator)
+        start = bench_command(simulator)
         # The image is started from this run's folder, by a path relative to it.
         image = os.path.relpath(built_at / start[-1], where)
         start = start[:-1] + [image if os.sep in image else os.path.join(".", image)]
@@ -686,7 +684,8 @@ def cosim(spec: BlockSpec, *, rtl: Sequence[str | Path] = (), top: str | None = 
         bench = write_testbench(spec, target, rtl=rtl, top=top, force=force, seed=seed, samples=samples,
                                 gap_percent=gap_percent, stall_percent=stall_percent, sink=sink,
                                 output_field="--keep")
-        result = run_folder(target, mode, waves=waves, simulator=simulator, frames=chosen, build_root=build_root)
+        result = run_folder(target, mode, waves=waves, simulator=simulator, frames=chosen,
+                            build_root=build_root)
         keep = keep or (keep_on_failure and not result.passed)
         failing = (result.report or {}).get("failing_frames") if not result.passed else None
         rerun = None
