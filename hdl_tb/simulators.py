@@ -115,11 +115,22 @@ def find_simulator(name: str) -> None:
 
 
 def verilator_environment() -> dict[str, str]:
-    """``os.environ`` with ``VERILATOR_ROOT`` set and its ``bin`` first on ``PATH``."""
+    """``os.environ`` with ``VERILATOR_ROOT`` set, its ``bin`` first on ``PATH`` and ``OBJCACHE`` set to
+    ``ccache`` when ccache is installed (and ``OBJCACHE`` is not set already).
+
+    Notes
+    -----
+    Verilator's ``verilated.mk`` puts ``$(OBJCACHE)`` before every compiler
+    call. Most of a build's C++ compilation is Verilator's and cocotb's
+    run-time library, the same for every design and parameter set, so with
+    ccache every build after the first compiles only the model itself.
+    """
     root = verilator_root()
     env = dict(os.environ)
     env["VERILATOR_ROOT"] = str(root)
     env["PATH"] = f"{root / 'bin'}{os.pathsep}{env.get('PATH', '')}"
+    if "OBJCACHE" not in env and shutil.which("ccache"):
+        env["OBJCACHE"] = "ccache"
     return env
 
 
@@ -129,7 +140,7 @@ def simulator_environment(name: str) -> Iterator[None]:
     if name != "verilator":
         yield
         return
-    saved = {k: os.environ.get(k) for k in ("VERILATOR_ROOT", "PATH")}
+    saved = {k: os.environ.get(k) for k in ("VERILATOR_ROOT", "PATH", "OBJCACHE")}
     os.environ.update({k: v for k, v in verilator_environment().items() if k in saved})
     try:
         yield
@@ -190,12 +201,11 @@ def build_verilog_bench(simulator: str, *, sources: Sequence[str], parameters: M
     log = build / "build.log"
     srcs = [folder / s for s in sources]
     if simulator == "icarus":
-        iverilog, vvp = icarus_tools()
+        iverilog, _ = icarus_tools()
         image = build / "bench.vvp"
         cmd = [iverilog, "-g2012", *flags, "-s", top, "-o", os.path.relpath(image, folder)]
         cmd += [f"-P{top}.{k}={v}" for k, v in parameters.items()]
         env = None
-        start = [vvp, "-n", "bench.vvp"]
     else:
         image = build / "obj" / "bench"
         cmd = [str(verilator_root() / "bin" / "verilator"), "--binary", *VERILATOR_FLAGS,
@@ -204,7 +214,6 @@ def build_verilog_bench(simulator: str, *, sources: Sequence[str], parameters: M
         cmd += ["--trace"] if waves else []
         cmd += [f"-G{k}={v}" for k, v in parameters.items()]
         env = verilator_environment()
-        start = [str(Path("obj") / "bench")]
     cmd += list(sources)
     stale = not image.is_file() or any(s.stat().st_mtime > image.stat().st_mtime for s in srcs)
     if stale:
@@ -215,7 +224,14 @@ def build_verilog_bench(simulator: str, *, sources: Sequence[str], parameters: M
             raise SpecError("--rtl", f"the RTL does not compile with the pure-Verilog bench on {LABELS[simulator]}: "
                             f"{first_error(proc.stdout + proc.stderr)}",
                             f"Verilog or SystemVerilog sources that {LABELS[simulator]} elaborates")
-    return start, log
+    return bench_command(simulator), log
+
+
+def bench_command(simulator: str) -> list[str]:
+    """The command that starts a built pure-Verilog bench from its build folder (the image path last)."""
+    if simulator == "icarus":
+        return [icarus_tools()[1], "-n", "bench.vvp"]
+    return [str(Path("obj") / "bench")]
 
 
 def cocotb_build_args(simulator: str) -> list[str]:
