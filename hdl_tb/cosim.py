@@ -432,7 +432,9 @@ def _run_cocotb(folder: Path, config: Mapping, mode: str, where: Path, words: in
                          build_args=cocotb_build_args(simulator), log_file=build_log)
 
         try:
-            if build_root is None:
+            if build_root is None or simulator == "ghdl":
+                # GHDL runs from the folder that holds its work library, and its analysis takes well under a
+                # second: each run analyses in its own folder instead of sharing a build.
                 build(where)
             else:
                 key = design_key(folder, toplevel=m["toplevel"], sources=m["sources"], parameters=m["parameters"],
