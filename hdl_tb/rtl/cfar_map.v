@@ -3,7 +3,7 @@
 // Parameter check, used inside a generate branch that only an illegal
 // parameter set elaborates (the construct of cfar_stream.v, under this
 // file's own name so both files compile together in any order).
-// Verilator: an elaboration-time $fatal (IEEE Std 1800-2017, 20.11).
+// Under Verilator, an elaboration-time $fatal (IEEE Std 1800-2017, 20.11).
 // Icarus Verilog and Yosys: the instantiation of a module that does not
 // exist, whose name says what is wrong.
 `ifdef VERILATOR
