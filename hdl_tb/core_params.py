@@ -212,7 +212,8 @@ def map_core_parameters(spec, *, srst_level: int = 1, reference_core: bool = Tru
         ``REF_DOPPLER``, ``GUARD_RANGE``, ``GUARD_DOPPLER``, ``KIND``, ``RANGE_EDGE``,
         ``DOPPLER_EDGE``, ``SUM_BITS``, ``ALPHA_INT``, ``DROP_BITS``, ``THRESHOLD_FRAC_BITS``,
         ``THRESHOLD_BITS``, ``ROUNDING``, ``OVERFLOW``, ``COMPARE_GE``, ``TRUNCATE_PARTIALS``,
-        ``PIPELINE_STAGES``, ``SRST_LEVEL``; a user core also gets ``OS_RANK`` (1 unless OS).
+        ``PIPELINE_STAGES``, ``SRST_LEVEL`` (a user's own map core that needs an OS rank
+        gets it through ``[ports.parameters]``).
 
     Raises
     ------
@@ -259,8 +260,6 @@ def map_core_parameters(spec, *, srst_level: int = 1, reference_core: bool = Tru
         "PIPELINE_STAGES": spec.pipeline_stages,
         "SRST_LEVEL": int(srst_level),
     }
-    if not reference_core:
-        params["OS_RANK"] = spec.rank if spec.kind == "os" else 1
     return params
 
 

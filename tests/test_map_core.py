@@ -163,7 +163,7 @@ def test_refusals_name_the_field():
     with pytest.raises(SpecError, match=r"^stream\.pipeline_stages"):
         core_parameters(map_spec(stages=1))
     # A user's own core gets the parameters anyway.
-    assert core_parameters(_os_spec(), reference_core=False)["OS_RANK"] == 10
+    assert core_parameters(_os_spec(), reference_core=False)["KIND"] == 3
 
 
 def _os_spec():
