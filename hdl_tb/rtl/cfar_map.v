@@ -318,28 +318,13 @@ module cfar_map #(
 
     reg  [PIPELINE_STAGES-1:0] valid_pipe_reg;
     reg  [OUT_BITS+1:0]        out_word_reg;   // {map start, line end, word}
-    // Padded position (p, q) of the next window-stream step.
-    reg  [PB-1:0]              p_reg;
-    reg  [QB-1:0]              q_reg;
 
     wire out_valid = valid_pipe_reg[PIPELINE_STAGES-1];
     // The whole pipeline moves unless a word waits at the output.
     wire advance   = ~out_valid | m_axis_tready;
 
-    localparam [PB-1:0] P_ONE = 1;
-    localparam [QB-1:0] Q_ONE = 1;
     localparam [PB-1:0] P_LAST = PS - 1;
     localparam [QB-1:0] Q_LAST = PF - 1;
-    // Along each stream axis: a map cell (body) or a pad position.
-    wire body_s = (p_reg >= HS) && (p_reg < HS + LS);
-    wire body_f = (q_reg >= HF) && (q_reg < HF + LF);
-    wire line_end_step = (q_reg == Q_LAST);
-    wire [QB-1:0] q_step = line_end_step ? {QB{1'b0}} : q_reg + Q_ONE;
-    wire [PB-1:0] p_step = line_end_step ? ((p_reg == P_LAST) ? {PB{1'b0}} : p_reg + P_ONE) : p_reg;
-
-    // The step, and the cell entering the window stream at it.
-    wire          step;
-    wire [IB-1:0] enter_value;
 
     // Map index along an axis of a padded position, wrapped once (circular; pads otherwise unused).
     function [JB-1:0] fast_index;
@@ -360,6 +345,96 @@ module cfar_map #(
         end
     endfunction
 
+    // pos_reg: flags of the padded position (p, q), the entering cell of a step there:
+    // {body_s, body_f, map's first cell, line end, line start, last step of the padded map,
+    //  the CUT (map index (p - 2H_s, q - 2H_f)) is a map cell, and the CUT's fields
+    //  {map start, line end, last of map, skip, window-valid}}.
+    localparam integer PF_BITS = 12;
+
+    // Store read address of a position: line base (bank or map line) plus the wrapped fast index.
+    function [ST_AB-1:0] store_address;
+        input [PB-1:0] p;
+        input [QB-1:0] q;
+        begin
+            store_address = (STORE == 2) ? slow_index(p) * LF + fast_index(q) : fast_index(q);
+        end
+    endfunction
+
+    // Padded position (p, q) of the next window-stream step, the one after it, and their flags
+    // (registers, so that a simulator evaluates the position logic once per step).
+    reg  [PB-1:0]         p_reg;
+    reg  [QB-1:0]         q_reg;
+    reg  [PB-1:0]         p_succ_reg;
+    reg  [QB-1:0]         q_succ_reg;
+    reg  [PF_BITS-1:0]    pos_reg;
+    reg  [ST_AB-1:0]      st_addr_reg;       // store address of (p, q) without the line bank
+    reg  [ST_AB-1:0]      st_addr_succ_reg;  // the same for the position after it
+    reg  [PB-1:0]         p_n;
+    reg  [QB-1:0]         q_n;
+    reg  [PB-1:0]         p_2;
+    reg  [QB-1:0]         q_2;
+    reg                   fits_s;
+    reg                   fits_f;
+    reg                   range_fits;
+    reg                   doppler_fits;
+    reg                   cut_line_end;
+
+    wire body_s       = pos_reg[11];
+    wire body_f       = pos_reg[10];
+    wire at_first     = pos_reg[9];
+    wire line_end_pos = pos_reg[8];
+    wire line_start   = pos_reg[7];
+    wire last_pos     = pos_reg[6];
+    wire cut_body     = pos_reg[5];
+
+    // The step, and the cell entering the window stream at it.
+    wire          step;
+    wire [IB-1:0] enter_value;
+    wire [WS*IB-1:0] column;
+
+    // The CUT (row H_s of the column that entered H_f steps ago) and its fields, stage 1.
+    reg [(HF+1)*IB-1:0] cut_pipe_reg;
+    reg [4:0]           flags_reg;     // {map start, line end, last of map, skip, window-valid}
+
+    always @(posedge clk) begin
+        if (step) begin
+            cut_pipe_reg <= {cut_pipe_reg[HF*IB+IB-1:0], column[HS*IB +: IB]};
+            flags_reg    <= pos_reg[4:0];
+        end
+        // (p_n, q_n): the position after this clock; (p_2, q_2): the one after it.
+        if (rst | step) begin
+            p_n = rst ? {PB{1'b0}} : p_succ_reg;
+            q_n = rst ? {QB{1'b0}} : q_succ_reg;
+            if (q_n != Q_LAST) begin
+                p_2 = p_n;
+                q_2 = q_n + 1'b1;
+            end else begin
+                p_2 = (p_n != P_LAST) ? p_n + 1'b1 : {PB{1'b0}};
+                q_2 = {QB{1'b0}};
+            end
+            p_reg      <= p_n;
+            q_reg      <= q_n;
+            p_succ_reg <= p_2;
+            q_succ_reg <= q_2;
+            // The window fits along an axis: H <= i <= L - 1 - H.
+            fits_s       = (p_n >= 3 * HS) && (p_n <= LS - 1 + HS);
+            fits_f       = (q_n >= 3 * HF) && (q_n <= LF - 1 + HF);
+            range_fits   = (ORDER == 1) ? fits_f : fits_s;
+            doppler_fits = (ORDER == 1) ? fits_s : fits_f;
+            cut_line_end = (q_n == 2 * HF + LF - 1);
+            pos_reg <= {(p_n >= HS) && (p_n < HS + LS), (q_n >= HF) && (q_n < HF + LF), (p_n == HS) && (q_n == HF),
+                        (q_n == Q_LAST), (q_n == 0), (p_n == P_LAST) && (q_n == Q_LAST),
+                        (p_n >= 2 * HS) && (p_n < 2 * HS + LS) && (q_n >= 2 * HF) && (q_n < 2 * HF + LF),
+                        (p_n == 2 * HS) && (q_n == 2 * HF), cut_line_end, cut_line_end && (p_n == 2 * HS + LS - 1),
+                        ((RANGE_EDGE == 0) & ~range_fits) | ((DOPPLER_EDGE == 0) & ~doppler_fits),
+                        range_fits & (doppler_fits | (DOPPLER_EDGE == 3))};
+            if (STORE != 0) begin
+                st_addr_reg      <= rst ? store_address(p_n, q_n) : st_addr_succ_reg;
+                st_addr_succ_reg <= store_address(p_2, q_2);
+            end
+        end
+    end
+
     // ------------------------------------------------------------------
     // Input: straight into the window stream, or through a store
     // (docs/bit-true-2d.md section 9).
@@ -369,9 +444,8 @@ module cfar_map #(
             // A body step takes the offered cell; the first cell of a map must carry s_axis_tuser,
             // cells offered before it are taken and dropped. Pad steps need no input.
             wire body   = body_s & body_f;
-            wire first  = (p_reg == HS) && (q_reg == HF);
             assign s_axis_tready = advance & body & ~rst;
-            assign step = advance & ~rst & (~body | (s_axis_tvalid & (~first | s_axis_tuser)));
+            assign step = advance & ~rst & (~body | (s_axis_tvalid & (~at_first | s_axis_tuser)));
             assign enter_value = body ? s_axis_tdata : {IB{1'b0}};
         end else begin : g_store
             reg [IB-1:0]    st_mem [0:ST_DEPTH-1];
@@ -401,11 +475,10 @@ module cfar_map #(
                 wire [1:0] ahead = wseq_reg - rdone_reg;
                 assign write_ok = (ahead != 2'd2);
                 assign read_ok  = ~body_s | (wseq_d_reg != rdone_reg);
-                wire       rd_line_end = step & body_s & line_end_step;
+                wire       rd_line_end = step & body_s & line_end_pos;
                 wire [1:0] rdone_next = rd_line_end ? rdone_reg + 2'd1 : rdone_reg;
-                wire [QB-1:0] q_next  = step ? q_step : q_reg;
                 wire [ST_AB-1:0] bank_base = rdone_next[0] ? LF : 0;
-                assign rd_addr_next = bank_base + fast_index(q_next);
+                assign rd_addr_next = bank_base + (step ? st_addr_succ_reg : st_addr_reg);
                 assign enter_value  = body_s ? st_rd_reg : {IB{1'b0}};
                 always @(posedge clk) begin
                     if (rst) begin
@@ -431,9 +504,7 @@ module cfar_map #(
                 reg filled_d_reg;              // one clock late: the map is readable
                 assign write_ok = ~filled_reg;
                 assign read_ok  = filled_reg & filled_d_reg;
-                wire [QB-1:0] q_next = step ? q_step : q_reg;
-                wire [PB-1:0] p_next = step ? p_step : p_reg;
-                assign rd_addr_next = slow_index(p_next) * LF + fast_index(q_next);
+                assign rd_addr_next = step ? st_addr_succ_reg : st_addr_reg;
                 assign enter_value  = (body_f | (EF == 3)) ? st_rd_reg : {IB{1'b0}};
                 always @(posedge clk) begin
                     if (rst) begin
@@ -444,7 +515,7 @@ module cfar_map #(
                         filled_d_reg <= filled_reg;
                         if (w_take) wr_addr_reg <= w_map_end ? {ST_AB{1'b0}} : wr_addr_reg + 1'b1;
                         if (w_take & w_map_end) filled_reg <= 1'b1;
-                        else if (step && p_reg == P_LAST && q_reg == Q_LAST) filled_reg <= 1'b0;
+                        else if (step && last_pos) filled_reg <= 1'b0;
                     end
                 end
             end
@@ -466,16 +537,6 @@ module cfar_map #(
         end
     endgenerate
 
-    always @(posedge clk) begin
-        if (rst) begin
-            p_reg <= {PB{1'b0}};
-            q_reg <= {QB{1'b0}};
-        end else if (step) begin
-            p_reg <= p_step;
-            q_reg <= q_step;
-        end
-    end
-
     // ------------------------------------------------------------------
     // Line buffers: one RAM of P_f words, word q holding fast position q of
     // the 2H_s padded lines before the current one (oldest at the LSBs).
@@ -484,25 +545,28 @@ module cfar_map #(
     // entering cell added. The entering column: {enter, word}, row 0 the
     // oldest line.
     // ------------------------------------------------------------------
-    wire [WS*IB-1:0] column;
-
     generate
         if (HS > 0) begin : g_line_buffers
             reg  [LBW-1:0] lb_mem [0:PF-1];
             reg  [LBW-1:0] lb_rd_reg;
-            reg  [LBW-1:0] lb_fwd_reg;
-            reg            lb_fwd_reg_on;
-            wire [QB-1:0]  lb_addr_next = step ? q_step : q_reg;
-            wire [LBW-1:0] lb_word = lb_fwd_reg_on ? lb_fwd_reg : lb_rd_reg;
+            wire [QB-1:0]  lb_addr_next = step ? q_succ_reg : q_reg;
+            wire [LBW-1:0] lb_word;
             assign column = {enter_value, lb_word};
             always @(posedge clk) begin
                 if (step) lb_mem[q_reg] <= column[WS*IB-1:IB];
                 lb_rd_reg <= lb_mem[lb_addr_next];
             end
-            // A one-cell padded line reads the word it writes: forward it.
-            always @(posedge clk) begin
-                lb_fwd_reg_on <= (PF == 1) & step;
-                if (PF == 1 && step) lb_fwd_reg <= column[WS*IB-1:IB];
+            if (PF == 1) begin : g_forward
+                // A one-cell padded line reads the word it writes: forward it.
+                reg [LBW-1:0] lb_fwd_reg;
+                reg           lb_fwd_on_reg;
+                always @(posedge clk) begin
+                    lb_fwd_on_reg <= step;
+                    if (step) lb_fwd_reg <= column[WS*IB-1:IB];
+                end
+                assign lb_word = lb_fwd_on_reg ? lb_fwd_reg : lb_rd_reg;
+            end else begin : g_no_forward
+                assign lb_word = lb_rd_reg;
             end
         end else begin : g_no_line_buffers
             assign column = enter_value;
@@ -512,7 +576,6 @@ module cfar_map #(
     // ------------------------------------------------------------------
     // Running rectangle sums (one cfar_map_rect per used slot).
     // ------------------------------------------------------------------
-    wire line_start = (q_reg == {QB{1'b0}});
     wire [SUM_BITS-1:0] box0;
     wire [SUM_BITS-1:0] box1;
     wire [SUM_BITS-1:0] box2;
@@ -554,28 +617,7 @@ module cfar_map #(
     // entered H_f steps ago; its map index (i, j) = (p - 2H_s, q - 2H_f) of
     // the entering position. Registered at the step (stage 1, beside the sums).
     // ------------------------------------------------------------------
-    reg [(HF+1)*IB-1:0] cut_pipe_reg;
-    reg [4:0]           flags_reg;     // {map start, line end, last of map, skip, window-valid}
-
-    wire cut_body_s = (p_reg >= 2 * HS) && (p_reg < 2 * HS + LS);
-    wire cut_body_f = (q_reg >= 2 * HF) && (q_reg < 2 * HF + LF);
-    // The window fits along an axis: H <= i <= L - 1 - H.
-    wire fits_s = (p_reg >= 3 * HS) && (p_reg <= LS - 1 + HS);
-    wire fits_f = (q_reg >= 3 * HF) && (q_reg <= LF - 1 + HF);
-    wire range_fits   = (ORDER == 1) ? fits_f : fits_s;
-    wire doppler_fits = (ORDER == 1) ? fits_s : fits_f;
-    wire cut_valid = range_fits & (doppler_fits | (DOPPLER_EDGE == 3));
-    wire cut_skip  = ((RANGE_EDGE == 0) & ~range_fits) | ((DOPPLER_EDGE == 0) & ~doppler_fits);
-    wire cut_line_end = (q_reg == 2 * HF + LF - 1);
-    wire cut_first    = (p_reg == 2 * HS) && (q_reg == 2 * HF);
-    wire cut_last     = cut_line_end && (p_reg == 2 * HS + LS - 1);
-
-    always @(posedge clk) begin
-        if (step) begin
-            cut_pipe_reg <= {cut_pipe_reg[HF*IB+IB-1:0], column[HS*IB +: IB]} ;
-            flags_reg    <= {cut_first, cut_line_end, cut_last, cut_skip, cut_valid};
-        end
-    end
+    // (cut_pipe_reg and flags_reg are loaded in the position block above.)
 
     // ------------------------------------------------------------------
     // Datapath functions (the arithmetic of cfar_stream.v after S)
@@ -660,7 +702,7 @@ module cfar_map #(
     endfunction
 
     // Valid bits of all stages: a word is formed at a step whose CUT is a map cell.
-    wire form_valid_next = step & cut_body_s & cut_body_f;
+    wire form_valid_next = step & cut_body;
     wire [PIPELINE_STAGES-1:0] valid_in_ext = form_valid_next;
 
     always @(posedge clk) begin
@@ -779,23 +821,15 @@ module cfar_map_rect #(
     reg [LEN*SB-1:0] cs_reg;
     reg [SB-1:0]     box_reg;
 
-    // Sum of the rectangle's rows of a column.
-    function [SB-1:0] column_sum;
-        input [ROWS*CELL_BITS-1:0] col;
-        reg   [SB-1:0]             s;
-        integer                    r;
-        begin
-            s = {SB{1'b0}};
-            for (r = ROW0; r < ROW0 + NROWS; r = r + 1) s = s + col[r*CELL_BITS +: CELL_BITS];
-            column_sum = s;
-        end
-    endfunction
-
     reg [SB-1:0] cs_in;
     reg [SB-1:0] cs_enter;
+    integer      r;
     always @(posedge clk) begin
         if (step) begin
-            cs_in = column_sum(column);
+            // The column sum of the rectangle's rows (inline: a function call costs a simulator more, and
+            // adders written as nets much more).
+            cs_in = {SB{1'b0}};
+            for (r = ROW0; r < ROW0 + NROWS; r = r + 1) cs_in = cs_in + column[r*CELL_BITS +: CELL_BITS];
             if (line_start) begin
                 cs_reg  <= {{((LEN-1)*SB){1'b0}}, cs_in};
                 box_reg <= (COL0 + NCOLS == COLS) ? cs_in : {SB{1'b0}};

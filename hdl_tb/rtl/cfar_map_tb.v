@@ -248,6 +248,9 @@ module cfar_map_tb;
     integer n_errors   = 0;
     integer drain_left = -1;  // cycles of s_axis_tready low still expected (-1: not in a drain)
     integer in_pos     = 0;   // map position of the next stimulus word to offer
+    integer in_j       = 0;   // its position in its line (fast axis)
+    integer in_j_taken = 0;   // line position of the word just taken
+    integer exp_j      = 0;   // line position of the next expected word
     integer in_map_pos = 0;   // map position of the word just taken
     integer reset_at;         // RESET_AT (plusarg)
     integer reset_left = 0;   // reset cycles still to go
@@ -483,10 +486,17 @@ module cfar_map_tb;
                     next_idx = in_idx + 1;
                     // Map position of the taken word, and of the next one (0 after a last-of-map marker).
                     in_map_pos = in_pos;
-                    in_pos = (stim_mem[in_idx][INPUT_BITS] === 1'b1) ? 0 : in_pos + 1;
+                    in_j_taken = in_j;
+                    if (stim_mem[in_idx][INPUT_BITS] === 1'b1) begin
+                        in_pos = 0;
+                        in_j   = 0;
+                    end else begin
+                        in_pos = in_pos + 1;
+                        in_j   = (in_j == LF - 1) ? 0 : in_j + 1;
+                    end
                     // Pad steps after this cell: none inside a line, 2 H_f after a line, 2 H_s P_f + 2 H_f after a map.
                     if (in_map_pos == MAP_CELLS - 1)   drain_left = 2 * HS * PF + 2 * HF;
-                    else if (in_map_pos % LF == LF - 1) drain_left = 2 * HF;
+                    else if (in_j_taken == LF - 1)     drain_left = 2 * HF;
                     else                                drain_left = 0;
                     if (in_idx == reset_at) begin
                         // Mid-map reset: srst for 3 cycles; checking resumes at the next map.
@@ -508,7 +518,7 @@ module cfar_map_tb;
                     stim_word = stim_mem[next_idx];
                     s_tvalid <= 1'b1;
                     s_tdata  <= stim_word[INPUT_BITS-1:0];
-                    s_tlast  <= (in_pos % LF == LF - 1);
+                    s_tlast  <= (in_j == LF - 1);
                     s_tuser  <= (in_pos == 0);
                 end else begin
                     s_tvalid <= 1'b0;
@@ -521,8 +531,7 @@ module cfar_map_tb;
 
             // Output handshake rule (ARM IHI 0051A, 2.2.1): a word offered and
             // not taken stays offered, unchanged.
-            if (reset_left > 0) prev_hold = 1'b0;
-            if (prev_hold) begin
+            if (prev_hold && reset_left == 0) begin
                 if (!m_tvalid || m_tdata !== prev_word) begin
                     if (n_errors < max_reports)
                         $display("ERROR: cycle %0d: m_axis_tvalid dropped or m_axis_tdata changed before the transfer",
@@ -537,7 +546,7 @@ module cfar_map_tb;
                     prev_hold = 1'b0;
                     $fwrite(out_fd, "%h\n", m_tdata);
                     // tlast: the line's last cell (fast axis); tuser: the map's first cell.
-                    exp_word = {(exp_sample % LF == LF - 1), expect_mem[out_idx]};
+                    exp_word = {(exp_j == LF - 1), expect_mem[out_idx]};
                     if ({m_tlast, m_tdata} !== exp_word || m_tuser !== (exp_sample == 0))
                         report_mismatch(exp_word[OUT_W-1:0], m_tdata, m_tlast, m_tuser);
                     if (check_latency) begin
@@ -553,8 +562,10 @@ module cfar_map_tb;
                     if (expect_mem[out_idx][LAST_BIT] === 1'b1) begin
                         exp_frame  = exp_frame + 1;
                         exp_sample = 0;
+                        exp_j      = 0;
                     end else begin
                         exp_sample = exp_sample + 1;
+                        exp_j      = (exp_j == LF - 1) ? 0 : exp_j + 1;
                     end
                     out_idx = out_idx + 1;
                     if (out_idx == n_words) begin
@@ -612,6 +623,7 @@ module cfar_map_tb;
                         out_idx    = (reset_at / MAP_CELLS + 1) * MAP_CELLS;
                         exp_frame  = reset_at / MAP_CELLS + 1;
                         exp_sample = 0;
+                        exp_j      = 0;
                     end
                     if (out_idx >= n_words) begin
                         active = 1'b0;
