@@ -45,7 +45,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     p.add_argument("spec", metavar="SPEC", help="block spec (TOML)")
     p.add_argument("--flow", choices=tuple(FLOWS), default="generic", help="Yosys flow (default generic)")
     p.add_argument("--rtl", nargs="+", metavar="FILE", default=[],
-                   help="your RTL files (default: the reference core cfar_stream)")
+                   help="your RTL files (default: the reference core cfar_stream; cfar_map for a map spec)")
     p.add_argument("--top", metavar="NAME", help="top module of the RTL (overrides ports.module)")
     p.add_argument("--json", action="store_true", help="print one JSON object instead of the table")
     p.set_defaults(func=run)

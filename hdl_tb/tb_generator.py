@@ -276,8 +276,30 @@ def map_adapter_source(pm: PortMap, bench: Mapping[str, int]) -> str:
             extra.append(f"    // The module has no {role} port: made from the count of output transfers.")
             extra.append(f"    assign {wire} = 1'b0;")
             extra.append(f"    assign {port} = {made};")
+    counter = ""
+    if sig["out_last"] is None or sig["out_user"] is None:
+        counter = """\
+    // Cells of a fast-axis line, the bits of the output position counter, the output word width.
+    localparam integer LF = (ORDER == 1) ? RANGE_CELLS : DOPPLER_BINS;
+    localparam integer JB = (LF > 1) ? $clog2(LF) : 1;
+    localparam integer OUT_W = INPUT_BITS + THRESHOLD_BITS + 3;
+
+    // Position of the next output word in its line, and whether it starts a map (from the transfers).
+    reg [JB-1:0] out_j_reg;
+    reg          out_first_reg;
+    always @(posedge clk) begin
+        if (bench_reset) begin
+            out_j_reg     <= {JB{1'b0}};
+            out_first_reg <= 1'b1;
+        end else if (m_axis_tvalid && m_axis_tready) begin
+            out_j_reg     <= (out_j_reg == LF - 1 || m_axis_tdata[OUT_W-1]) ? {JB{1'b0}} : out_j_reg + 1'b1;
+            out_first_reg <= m_axis_tdata[OUT_W-1];
+        end
+    end
+"""
     return render(
         "port_adapter_map.v.tmpl", version=tool_version(), module=pm.module, clock=pm.clock, reset=pm.reset,
+        counter_block=counter,
         reset_level="high" if pm.reset_active_high else "low", out_data_bits=pm.out_data_bits,
         parameter_block=_parameter_block(bench, trailing_comma=False),
         reset_expr="bench_reset" if pm.reset_active_high else "~bench_reset",
