@@ -701,7 +701,9 @@ module cfar_map #(
         end
     endfunction
 
-    // Valid bits of all stages: a word is formed at a step whose CUT is a map cell.
+    // Valid bits of all stages: a word is formed at a step whose CUT is a map cell. A data stage
+    // loads only when the word entering it is valid (a clock enable; it saves a simulator the
+    // arithmetic of the pad steps and bubbles).
     wire form_valid_next = step & cut_body;
     wire [PIPELINE_STAGES-1:0] valid_in_ext = form_valid_next;
 
@@ -724,21 +726,24 @@ module cfar_map #(
     generate
         if (PIPELINE_STAGES <= 2) begin : g_out_direct
             always @(posedge clk) begin
-                if (advance) out_word_reg <= output_word(scaled_product(noise_statistic(box0, box1, box2, box3)), f_side);
+                if (advance && valid_pipe_reg[0])
+                    out_word_reg <= output_word(scaled_product(noise_statistic(box0, box1, box2, box3)), f_side);
             end
         end else begin : g_out_staged
             if (PIPELINE_STAGES == 3) begin : g_mul_from_sums
                 always @(posedge clk) begin
-                    if (advance) begin
+                    if (advance && valid_pipe_reg[0]) begin
                         mul_reg      <= scaled_product(noise_statistic(box0, box1, box2, box3));
                         mul_side_reg <= f_side;
                     end
                 end
             end else begin : g_stat_then_mul
                 always @(posedge clk) begin
-                    if (advance) begin
+                    if (advance && valid_pipe_reg[0]) begin
                         stat_reg      <= noise_statistic(box0, box1, box2, box3);
                         stat_side_reg <= f_side;
+                    end
+                    if (advance && valid_pipe_reg[1]) begin
                         mul_reg       <= scaled_product(stat_reg);
                         mul_side_reg  <= stat_side_reg;
                     end
@@ -746,7 +751,7 @@ module cfar_map #(
             end
             if (PIPELINE_STAGES <= 4) begin : g_out_from_mul
                 always @(posedge clk) begin
-                    if (advance) out_word_reg <= output_word(mul_reg, mul_side_reg);
+                    if (advance && valid_pipe_reg[PIPELINE_STAGES-2]) out_word_reg <= output_word(mul_reg, mul_side_reg);
                 end
             end else begin : g_out_from_pads
                 always @(posedge clk) begin
