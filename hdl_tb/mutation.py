@@ -608,8 +608,8 @@ MAP_MUTANTS: tuple[Mutant, ...] = (
     Mutant("map_line_buffers_never_written",
            "bit-true-2d 3: each line buffer hands on the cell it took P_f steps earlier (the mutant keeps its "
            "first contents)",
-           "if (step) lb_mem[q_reg] <= column[WS*IB-1:IB];",
-           "if (step) lb_mem[q_reg] <= lb_word;"),
+           "lb_mem[q_reg] <= column[WS*IB-1:IB];",
+           "lb_mem[q_reg] <= lb_word;"),
     Mutant("map_pad_cells_not_zero",
            "bit-true-2d 2: a pad cell off a zero-pad or skip axis is 0 (the mutant takes the input bus)",
            "assign enter_value = body ? s_axis_tdata : {IB{1'b0}};",

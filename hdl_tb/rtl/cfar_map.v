@@ -549,12 +549,15 @@ module cfar_map #(
         if (HS > 0) begin : g_line_buffers
             reg  [LBW-1:0] lb_mem [0:PF-1];
             reg  [LBW-1:0] lb_rd_reg;
-            wire [QB-1:0]  lb_addr_next = step ? q_succ_reg : q_reg;
             wire [LBW-1:0] lb_word;
             assign column = {enter_value, lb_word};
+            // Read at a step only: without a step nothing is written, and after a reset the word read
+            // last feeds only the rows of lines before the map, which no CUT of a map cell sees.
             always @(posedge clk) begin
-                if (step) lb_mem[q_reg] <= column[WS*IB-1:IB];
-                lb_rd_reg <= lb_mem[lb_addr_next];
+                if (step) begin
+                    lb_mem[q_reg] <= column[WS*IB-1:IB];
+                    lb_rd_reg     <= lb_mem[q_succ_reg];
+                end
             end
             if (PF == 1) begin : g_forward
                 // A one-cell padded line reads the word it writes: forward it.
