@@ -520,12 +520,12 @@ module cfar_map #(
                 end
             end
 
-            // The store RAM: one write port, one synchronous read port.
+            // The store RAM: one write port, one synchronous read port. It is read at a step (the cell of
+            // the next position) and while the cells of the current one are not in the store yet (so the
+            // read that follows the last write is fresh); otherwise the word read last is still right.
             always @(posedge clk) begin
                 if (w_take) st_mem[wr_addr_reg] <= s_axis_tdata;
-                st_rd_reg <= st_mem[rd_addr_next];
-            end
-            always @(posedge clk) begin
+                if (step | ~read_ok) st_rd_reg <= st_mem[rd_addr_next];
                 if (rst) begin
                     wj_reg <= {JB{1'b0}};
                     wi_reg <= {IB_S{1'b0}};
