@@ -8,6 +8,11 @@ core's parameter values (plain ints, ready for ``iverilog -P``, a cocotb
 runner's ``parameters=`` or Yosys ``chparam``) and refuses, with a
 :class:`~refmodel.errors.SpecError`, what the core cannot be built with. The
 field-by-field description of the core is ``docs/reference-core.md``.
+
+A map (range-Doppler) block spec is realised by the map core
+``hdl_tb/rtl/cfar_map.v`` instead (``docs/reference-core-2d.md``):
+:func:`core_parameters` hands it to :func:`map_core_parameters`, and
+:func:`core_files` names the core, its sources and its bench for either kind.
 """
 
 from __future__ import annotations

@@ -20,6 +20,12 @@ Verilog:
 ``bench_config.json``, ``Makefile``, ``README.md``
     the settings every bench reads, the commands, a short description.
 
+For a map (range-Doppler) spec the reference core is ``cfar_map``, the
+pure-Verilog bench ``cfar_map_tb.v``, the adapter presents the module with
+the map core's interface (TUSER at each map's start, TLAST at each line's
+end), and ``bench/cfarvec_map_shim.v`` stands between the bulk driver and
+the adapter (``docs/testbench.md``, "Map (range-Doppler) blocks").
+
 Generated text comes from ``hdl_tb/templates/`` through
 :class:`string.Template` with ``@@`` as the delimiter (so Verilog's ``$``
 system tasks and braces need no escaping). Only validated values are

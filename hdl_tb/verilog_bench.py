@@ -5,7 +5,10 @@ expected-output hex file with ``$readmemh``, drives the core with optional
 seeded input gaps and output backpressure, compares every output word and
 prints one summary line (``PASS n`` or ``FAIL n first=...``). This module
 builds it for a block spec (one compiled image per parameter set, cached),
-runs it with ``vvp`` and returns a :class:`BenchResult`.
+runs it with ``vvp`` and returns a :class:`BenchResult`. For a map
+(range-Doppler) spec it builds and runs ``hdl_tb/rtl/cfar_map_tb.v`` around
+the map core ``cfar_map`` instead (the same knobs, plus ``reset_at``, a
+reset in the middle of a map).
 
 The output sink has two modes (:data:`SINK_MODES`): ``"independent"`` draws
 ``m_axis_tready`` every cycle without looking at ``m_axis_tvalid``;
