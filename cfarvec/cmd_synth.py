@@ -77,10 +77,13 @@ LUT_RAMS = ("RAM32M", "RAM64M", "RAM32X1D", "RAM64X1D", "RAM128X1D", "RAM256X1S"
 
 
 def map_memory(spec, cells: dict) -> dict:
-    """The map core's memory: what it holds (``design_memory_bits``: line buffers and input store,
+    """The map core's memory: what it holds (``design_memory_bits``: line buffers, input store and the
+    column sums of the line before, one word of W_S bits per padded-line cell and rectangle,
     ``docs/reference-core-2d.md``) and what Yosys mapped it to (``block_rams``, their ``block_ram_bits``
     capacity, ``lut_rams`` cells)."""
-    return {"design_memory_bits": int(spec.line_buffer_bits + spec.store_bits),
+    rects = sum(len(spec.stream_boxes(part)) for part in spec.parts)
+    column_sums = rects * spec.padded_line * spec.sum_bits
+    return {"design_memory_bits": int(spec.line_buffer_bits + spec.store_bits + column_sums),
             "block_rams": sum(n for name, n in cells.items() if name in BLOCK_RAMS),
             "block_ram_bits": sum(n * BLOCK_RAMS[name] for name, n in cells.items() if name in BLOCK_RAMS),
             "lut_rams": sum(n for name, n in cells.items() if name in LUT_RAMS)}
@@ -118,7 +121,7 @@ def run(args: argparse.Namespace) -> int:
     else:
         print(format_table(args.spec, counts, report.top))
         if memory:
-            print(f"  {'memory bits':<13}{memory['design_memory_bits']:>8}  (line buffers and input store)")
+            print(f"  {'memory bits':<13}{memory['design_memory_bits']:>8}  (line buffers, input store, column sums)")
             print(f"  {'block RAMs':<13}{memory['block_rams']:>8}  ({memory['block_ram_bits']} bits of capacity)")
             print(f"  {'LUT RAMs':<13}{memory['lut_rams']:>8}")
     return 0

@@ -3,7 +3,9 @@
 The memory the core holds is checked against the formulas of
 ``docs/bit-true-2d.md`` section 9 written out here from the spec fields
 (line buffers ``2 H_s P_f W_in`` bits; input store ``2 L_f W_in`` bits with
-a circular fast axis only, ``L_s L_f W_in`` with a circular slow axis), and
+a circular fast axis only, ``L_s L_f W_in`` with a circular slow axis) and
+of ``docs/reference-core-2d.md`` (the column sums of the line before, ``P_f``
+words of ``W_S`` bits per rectangle), and
 the netlist must hold RAM primitives (Xilinx UG473, 7-series block RAM;
 UG474, distributed RAM) rather than no memory at all, since the core writes
 its line buffers and store as inferred RAMs.
@@ -52,7 +54,10 @@ def test_synth_map_core_xilinx(tmp_path, capsys, range_edge):
     # doppler-fast: slow axis range (H_s = 2 + 1), fast axis Doppler (H_f = 1 + 1, L_f = 16, P_f = 20).
     lines = 2 * 3 * 20 * 12
     store = 24 * 16 * 12 if range_edge == "circular" else 2 * 16 * 12
-    assert out["design_memory_bits"] == lines + store
+    # Column sums of the line before: CA ring, two rectangles (window, guard rectangle), P_f words of
+    # W_S = bitlen(N (2^12 - 1)) bits, N = 5 x 7 - 3 x 3 = 26 (docs/reference-core-2d.md, Memory).
+    sums = 2 * 20 * (26 * 4095).bit_length()
+    assert out["design_memory_bits"] == lines + store + sums
     assert out["block_rams"] + out["lut_rams"] >= 1
     assert out["block_ram_bits"] == sum(n * {"RAMB18E1": 18432, "RAMB36E1": 36864}.get(k, 0)
                                         for k, n in out["cell_types"].items())
