@@ -1,7 +1,9 @@
 """Co-simulation speed of the map (range-Doppler) core: pure-Verilog bench and bulk cocotb bench on Icarus.
 
 Two vector sets (INVENTED SCENARIO, benchmark data, not a real system), both
-16-bit input words, about 200,000 words each, are generated once:
+16-bit input words, about 400,000 words each (twice ``bench_cosim.py``'s: the
+map core runs at about 24,000 cells/s, so the bulk bench's second of cocotb
+start-up would otherwise weigh a tenth of a run), are generated once:
 
 - 1D: the CA detector of ``bench_cosim.py`` (16 reference and 2 guard cells
   a side, 512-cell frames and random frames) on the 1D core ``cfar_stream``;
@@ -46,7 +48,7 @@ from hdl_tb.cosim import run_folder  # noqa: E402
 from hdl_tb.tb_generator import write_testbench  # noqa: E402
 from refmodel.block_spec import spec_from_dict  # noqa: E402
 
-WORDS = 200_000
+WORDS = 400_000
 SPEC_1D = {
     "detector": {"kind": "ca", "ref_cells_per_side": 16, "guard_cells_per_side": 2, "alpha": 17.28,
                  "edge": "zero-pad"},
