@@ -596,14 +596,15 @@ MAP_MUTANTS: tuple[Mutant, ...] = (
            "line before)",
            "box_reg <= (COL0 + NCOLS == COLS) ? cs_in : {SB{1'b0}};",
            "box_reg <= box_reg + cs_in - cs_reg[LEAVE_POS*SB +: SB];"),
-    Mutant("map_column_sum_one_row_short",
-           "bit-true-2d 3: a column sum adds the rectangle's n_s rows (the mutant leaves the last out)",
-           "for (r = ROW0; r < ROW0 + NROWS; r = r + 1)",
-           "for (r = ROW0; r < ROW0 + NROWS - 1; r = r + 1)"),
+    Mutant("map_column_sum_misses_a_first_line",
+           "bit-true-2d 3: a column sum adds the rectangle's n_s rows (the mutant, forming it line by line, "
+           "starts counting the new row one line late)",
+           "localparam integer ADD_FROM = ROWS - ROW0 - NROWS;",
+           "localparam integer ADD_FROM = ROWS - ROW0 - NROWS + 1;"),
     Mutant("map_running_column_sum_keeps_the_top_row",
            "bit-true-2d 3: a column sum adds the rectangle's rows of the entering column (the mutant, forming it "
            "from the line before, keeps that line's top row)",
-           "vs_mem[q] <= cs_in - column[ROW0*CELL_BITS +: CELL_BITS];",
+           "vs_mem[q] <= cs_in - cs_top;",
            "vs_mem[q] <= cs_in;"),
     Mutant("map_leaving_column_off_by_one",
            "bit-true-2d 3: the column sum leaving is the one now left of the rectangle (the mutant takes the "

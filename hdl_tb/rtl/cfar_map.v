@@ -349,7 +349,7 @@ module cfar_map #(
     // {body_s, body_f, map's first cell, line end, line start, last step of the padded map,
     //  the CUT (map index (p - 2H_s, q - 2H_f)) is a map cell, and the CUT's fields
     //  {map start, line end, last of map, skip, window-valid}}.
-    localparam integer PF_BITS = 13;
+    localparam integer PF_BITS = 12;
 
     // Store read address of a position: line base (bank or map line) plus the wrapped fast index.
     function [ST_AB-1:0] store_address;
@@ -379,8 +379,6 @@ module cfar_map #(
     reg                   doppler_fits;
     reg                   cut_line_end;
 
-    // The entering column holds lines before this map's padded map (the column sums are formed afresh).
-    wire exact_line   = pos_reg[12];
     wire body_s       = pos_reg[11];
     wire body_f       = pos_reg[10];
     wire at_first     = pos_reg[9];
@@ -424,7 +422,7 @@ module cfar_map #(
             range_fits   = (ORDER == 1) ? fits_f : fits_s;
             doppler_fits = (ORDER == 1) ? fits_s : fits_f;
             cut_line_end = (q_n == 2 * HF + LF - 1);
-            pos_reg <= {(p_n <= 2 * HS), (p_n >= HS) && (p_n < HS + LS), (q_n >= HF) && (q_n < HF + LF), (p_n == HS) && (q_n == HF),
+            pos_reg <= {(p_n >= HS) && (p_n < HS + LS), (q_n >= HF) && (q_n < HF + LF), (p_n == HS) && (q_n == HF),
                         (q_n == Q_LAST), (q_n == 0), (p_n == P_LAST) && (q_n == Q_LAST),
                         (p_n >= 2 * HS) && (p_n < 2 * HS + LS) && (q_n >= 2 * HF) && (q_n < 2 * HF + LF),
                         (p_n == 2 * HS) && (q_n == 2 * HF), cut_line_end, cut_line_end && (p_n == 2 * HS + LS - 1),
@@ -589,32 +587,32 @@ module cfar_map #(
     generate
         if (R0_USED) begin : g_rect0
             cfar_map_rect #(.CELL_BITS(IB), .ROWS(WS), .COLS(WF), .ROW0(R0_S0), .NROWS(R0_NS), .COL0(R0_F0),
-                            .NCOLS(R0_NF), .SUM_BITS(SUM_BITS), .LINE_CELLS(PF), .QBITS(QB))
-                u_rect (.clk(clk), .step(step), .line_start(line_start), .exact_line(exact_line), .q(q_reg),
+                            .NCOLS(R0_NF), .SUM_BITS(SUM_BITS), .LINE_CELLS(PF), .QBITS(QB), .PBITS(PB))
+                u_rect (.clk(clk), .step(step), .line_start(line_start), .p(p_reg), .q(q_reg),
                         .q_next(q_succ_reg), .column(column), .box(box0));
         end else begin : g_no_rect0
             assign box0 = {SUM_BITS{1'b0}};
         end
         if (R1_USED) begin : g_rect1
             cfar_map_rect #(.CELL_BITS(IB), .ROWS(WS), .COLS(WF), .ROW0(R1_S0), .NROWS(R1_NS), .COL0(R1_F0),
-                            .NCOLS(R1_NF), .SUM_BITS(SUM_BITS), .LINE_CELLS(PF), .QBITS(QB))
-                u_rect (.clk(clk), .step(step), .line_start(line_start), .exact_line(exact_line), .q(q_reg),
+                            .NCOLS(R1_NF), .SUM_BITS(SUM_BITS), .LINE_CELLS(PF), .QBITS(QB), .PBITS(PB))
+                u_rect (.clk(clk), .step(step), .line_start(line_start), .p(p_reg), .q(q_reg),
                         .q_next(q_succ_reg), .column(column), .box(box1));
         end else begin : g_no_rect1
             assign box1 = {SUM_BITS{1'b0}};
         end
         if (R2_USED) begin : g_rect2
             cfar_map_rect #(.CELL_BITS(IB), .ROWS(WS), .COLS(WF), .ROW0(R2_S0), .NROWS(R2_NS), .COL0(R2_F0),
-                            .NCOLS(R2_NF), .SUM_BITS(SUM_BITS), .LINE_CELLS(PF), .QBITS(QB))
-                u_rect (.clk(clk), .step(step), .line_start(line_start), .exact_line(exact_line), .q(q_reg),
+                            .NCOLS(R2_NF), .SUM_BITS(SUM_BITS), .LINE_CELLS(PF), .QBITS(QB), .PBITS(PB))
+                u_rect (.clk(clk), .step(step), .line_start(line_start), .p(p_reg), .q(q_reg),
                         .q_next(q_succ_reg), .column(column), .box(box2));
         end else begin : g_no_rect2
             assign box2 = {SUM_BITS{1'b0}};
         end
         if (R3_USED) begin : g_rect3
             cfar_map_rect #(.CELL_BITS(IB), .ROWS(WS), .COLS(WF), .ROW0(R3_S0), .NROWS(R3_NS), .COL0(R3_F0),
-                            .NCOLS(R3_NF), .SUM_BITS(SUM_BITS), .LINE_CELLS(PF), .QBITS(QB))
-                u_rect (.clk(clk), .step(step), .line_start(line_start), .exact_line(exact_line), .q(q_reg),
+                            .NCOLS(R3_NF), .SUM_BITS(SUM_BITS), .LINE_CELLS(PF), .QBITS(QB), .PBITS(PB))
+                u_rect (.clk(clk), .step(step), .line_start(line_start), .p(p_reg), .q(q_reg),
                         .q_next(q_succ_reg), .column(column), .box(box3));
         end else begin : g_no_rect3
             assign box3 = {SUM_BITS{1'b0}};
@@ -807,16 +805,17 @@ module cfar_map_rect #(
     parameter integer SUM_BITS = 20,
     // Cells of a padded line P_f (the column-sum RAM's depth), and the bits of a position in it.
     parameter integer LINE_CELLS = 16,
-    parameter integer QBITS = 4
+    parameter integer QBITS = 4,
+    // Bits of a padded line index.
+    parameter integer PBITS = 4
 ) (
     input  wire                      clk,
     // Shift the entering column in at this clock edge.
     input  wire                      step,
     // The step is the first of a padded line.
     input  wire                      line_start,
-    // Form the column sum from the rows (the first 2 H_s + 1 padded lines of a map) rather than from the
-    // one of the line before.
-    input  wire                      exact_line,
+    // Padded line of the step (0 at the first line of each map's padded map).
+    input  wire [PBITS-1:0]          p,
     // Position of the step in its padded line, and of the step after it.
     input  wire [QBITS-1:0]          q,
     input  wire [QBITS-1:0]          q_next,
@@ -844,28 +843,28 @@ module cfar_map_rect #(
     reg [LEN*SB-1:0] cs_reg;
     reg [SB-1:0]     box_reg;
 
-    // Column sums from the line before: word q holds, for fast position q, the sum of the rectangle's
-    // rows of the column there without its top row (ROW0), which is the sum of the rows but the last
-    // of the next line's column (the line buffers move every cell up one row a line).
+    // Column sums, formed line by line: word q of vs_mem holds, for fast position q, the sum of the
+    // rectangle's rows of the column there without its top row (ROW0), which is the sum of all rows but
+    // the last of the next line's column (the line buffers move every cell up one row a line). Only cells
+    // of lines of this map's padded map count: the new last row from padded line ADD_FROM on, the top row
+    // taken off from line SUB_FROM on, nothing carried into line 0. From padded line 2H_s = ROWS - 1 on
+    // every row is such a cell and the sum is exact; before, it is the sum of those rows that are, and
+    // whatever a reset or the map before left in the line buffers never enters it.
+    localparam integer ADD_FROM = ROWS - ROW0 - NROWS;
+    localparam integer SUB_FROM = ROWS - 1 - ROW0;
     reg [SB-1:0] vs_mem [0:LINE_CELLS-1];
     reg [SB-1:0] vs_rd_reg;
     reg [SB-1:0] cs_in;
+    reg [SB-1:0] cs_top;
     reg [SB-1:0] cs_enter;
-    integer      r;
     always @(posedge clk) begin
         if (step) begin
-            if (exact_line) begin
-                // The column sum of the rectangle's rows (inline: a function call costs a simulator more,
-                // and adders written as nets much more).
-                cs_in = {SB{1'b0}};
-                for (r = ROW0; r < ROW0 + NROWS; r = r + 1) cs_in = cs_in + column[r*CELL_BITS +: CELL_BITS];
-            end else begin
-                // The same sum from the line before: its rows but the top one, plus the new last row.
-                cs_in = vs_rd_reg + column[(ROW0+NROWS-1)*CELL_BITS +: CELL_BITS];
-            end
-            vs_mem[q] <= cs_in - column[ROW0*CELL_BITS +: CELL_BITS];
+            cs_in  = (p == {PBITS{1'b0}}) ? {SB{1'b0}} : vs_rd_reg;
+            if (p >= ADD_FROM) cs_in = cs_in + column[(ROW0+NROWS-1)*CELL_BITS +: CELL_BITS];
+            cs_top = (p >= SUB_FROM) ? column[ROW0*CELL_BITS +: CELL_BITS] : {SB{1'b0}};
+            vs_mem[q] <= cs_in - cs_top;
             // Read one step ahead (a one-cell line reads the word it writes: forward it).
-            vs_rd_reg <= (LINE_CELLS == 1) ? cs_in - column[ROW0*CELL_BITS +: CELL_BITS] : vs_mem[q_next];
+            vs_rd_reg <= (LINE_CELLS == 1) ? cs_in - cs_top : vs_mem[q_next];
             if (line_start) begin
                 cs_reg  <= {{((LEN-1)*SB){1'b0}}, cs_in};
                 box_reg <= (COL0 + NCOLS == COLS) ? cs_in : {SB{1'b0}};
