@@ -781,7 +781,9 @@ endmodule
 // cfar_map_rect: the running sum of one rectangle of the window (rows
 // ROW0 .. ROW0+NROWS-1 of the slow axis, columns COL0 .. COL0+NCOLS-1 of
 // the fast axis), docs/bit-true-2d.md section 3. At each step the column
-// sum of the rectangle's rows in the entering column enters a shift
+// sum of the rectangle's rows in the entering column (formed from the one
+// at the same fast position a line before: plus the new last row, minus
+// the top row, one RAM word per padded-line cell) enters a shift
 // register (newest at the LSBs; entry k is window column COLS-1-k, entry
 // COLS-COL0 the column that just left the rectangle's range), and
 // box <- box + (column sum now entering the rectangle) - (the one leaving),
