@@ -25,10 +25,17 @@ rounding ties for half-even, a threshold width too narrow for full scale for
 saturate and wrap, a truncated multiplier with a negative digit, each edge
 policy, several pipeline depths.
 
+The map core ``hdl_tb/rtl/cfar_map.v`` has its own campaign
+(:data:`MAP_MUTANTS`, :data:`MAP_CHECK_SPECS`, :data:`MAP_RUNS`, one of which
+resets the core in the middle of a map; :func:`run_map_mutation_check`),
+whose mutants name sections of ``docs/bit-true-2d.md``.
+
 Run it from the command line::
 
     python -m hdl_tb.mutation            # the built-in check specs
-    python -m hdl_tb.mutation SPEC.toml  # one block spec (its [vectors] section sets the vectors)
+    python -m hdl_tb.mutation --map      # the map core and its check specs
+    python -m hdl_tb.mutation SPEC.toml  # one block spec (its [vectors] section sets the vectors; a map spec
+                                         # runs the map campaign)
 
 It prints one line per mutant and ends with ``killed K of N mutants (P %)``;
 the exit status is 0 when every mutant is killed, 1 when one survives, 2 on
