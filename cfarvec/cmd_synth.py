@@ -28,7 +28,11 @@ with latches is refused. Exit status 0: counts printed; 1: Yosys failed;
 2: bad input (a bad spec, Yosys not installed). With --rtl
 your module is synthesised instead (top module: --top or ports.module of
 SPEC), with the parameters the testbenches give it (the [ports] table:
-core_parameters and [ports.parameters])."""
+core_parameters and [ports.parameters]). A map (range-Doppler) spec
+synthesises the map core hdl_tb/rtl/cfar_map.v; its table adds the
+memory the core holds (line buffers and input store, from the spec) and
+the RAM primitives Yosys mapped it to (block RAMs with their capacity,
+LUT RAMs)."""
 
 #: Rows of the text table: (label, SynthReport.summary() key); "other" is what no class counts
 #: (for example inverters and wide multiplexers of the xilinx flow).
@@ -43,7 +47,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     p.add_argument("spec", metavar="SPEC", help="block spec (TOML)")
     p.add_argument("--flow", choices=tuple(FLOWS), default="generic", help="Yosys flow (default generic)")
     p.add_argument("--rtl", nargs="+", metavar="FILE", default=[],
-                   help="your RTL files (default: the reference core cfar_stream)")
+                   help="your RTL files (default: the reference core cfar_stream; cfar_map for a map spec)")
     p.add_argument("--top", metavar="NAME", help="top module of the RTL (overrides ports.module)")
     p.add_argument("--json", action="store_true", help="print one JSON object instead of the table")
     p.set_defaults(func=run)
@@ -66,8 +70,31 @@ def format_table(spec_name: str, counts: dict, top: str = "cfar_stream") -> str:
     return "\n".join(lines)
 
 
+#: RAM primitives and the bits each holds: block RAMs (Xilinx 7-series RAMB18E1 / RAMB36E1, Xilinx UG473
+#: "7 Series FPGAs Memory Resources", 2019, ch. 1; Lattice iCE40 SB_RAM40_4K, Lattice TN1250 "Memory Usage
+#: Guide for iCE40 Devices", 2014) and distributed LUT RAMs (Xilinx UG474, ch. 5).
+BLOCK_RAMS = {"RAMB18E1": 18 * 1024, "RAMB36E1": 36 * 1024, "SB_RAM40_4K": 4 * 1024}
+LUT_RAMS = ("RAM32M", "RAM64M", "RAM32X1D", "RAM64X1D", "RAM128X1D", "RAM256X1S", "RAM32X1S", "RAM64X1S",
+            "RAM128X1S")
+
+
+def map_memory(spec, cells: dict) -> dict:
+    """The map core's memory: what it holds (``design_memory_bits``: line buffers, input store and the
+    column sums of the line before, one word of W_S bits per padded-line cell and rectangle,
+    ``docs/reference-core-2d.md``) and what Yosys mapped it to (``block_rams``, their ``block_ram_bits``
+    capacity, ``lut_rams`` cells)."""
+    rects = sum(len(spec.stream_boxes(part)) for part in spec.parts)
+    column_sums = rects * spec.padded_line * spec.sum_bits
+    return {"design_memory_bits": int(spec.line_buffer_bits + spec.store_bits + column_sums),
+            "block_rams": sum(n for name, n in cells.items() if name in BLOCK_RAMS),
+            "block_ram_bits": sum(n * BLOCK_RAMS[name] for name, n in cells.items() if name in BLOCK_RAMS),
+            "lut_rams": sum(n for name, n in cells.items() if name in LUT_RAMS)}
+
+
 def run(args: argparse.Namespace) -> int:
     """Synthesise and print the counts; 0 on success, 1 when Yosys fails."""
+    from hdl_tb.core_params import MAP_CORE_SOURCES, MAP_CORE_TOP, core_parameters, is_map_spec
+
     spec = load_spec(args.spec)
     extra = {}
     if args.rtl:
@@ -78,6 +105,10 @@ def run(args: argparse.Namespace) -> int:
         check_against_rtl(pm, files, parameters=target, input_bits=spec.input_bits,
                           module_field="--top" if args.top is not None else "ports.module")
         extra = {"sources": files, "top": pm.module}
+    elif is_map_spec(spec):
+        # The map core: its parameters (refusing, with the field, what it cannot build) and its source.
+        target = core_parameters(spec)
+        extra = {"sources": MAP_CORE_SOURCES, "top": MAP_CORE_TOP}
     else:
         target = spec
     try:
@@ -86,8 +117,13 @@ def run(args: argparse.Namespace) -> int:
         print(f"cfarvec synth: error: {str(exc).splitlines()[0]}", file=sys.stderr)
         return 1
     counts = report.summary()
+    memory = map_memory(spec, report.cells) if is_map_spec(spec) and not args.rtl else {}
     if args.json:
-        print(json.dumps({"spec": args.spec, "top": report.top, **counts, "cell_types": report.cells}))
+        print(json.dumps({"spec": args.spec, "top": report.top, **counts, **memory, "cell_types": report.cells}))
     else:
         print(format_table(args.spec, counts, report.top))
+        if memory:
+            print(f"  {'memory bits':<13}{memory['design_memory_bits']:>8}  (line buffers, input store, column sums)")
+            print(f"  {'block RAMs':<13}{memory['block_rams']:>8}  ({memory['block_ram_bits']} bits of capacity)")
+            print(f"  {'LUT RAMs':<13}{memory['lut_rams']:>8}")
     return 0

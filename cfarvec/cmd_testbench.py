@@ -16,8 +16,8 @@ from refmodel.block_spec import load_spec
 _DESCRIPTION = """\
 Write a folder that checks a streaming CFAR module against the project's
 bit-accurate model on Icarus Verilog: the golden vector set, a copy of the
-RTL (the reference core cfar_stream unless --rtl is given), a cocotb test
-module with two benches (bulk: a Verilog driver streams the vector file and
+RTL (the reference core cfar_stream, or cfar_map for a map spec, unless
+--rtl is given), a cocotb test module with two benches (bulk: a Verilog driver streams the vector file and
 Python compares at the end; interactive: Python feeds frame batches to that
 driver and checks each output frame as it arrives), its pytest runner, the pure-Verilog
 self-checking testbench with a Makefile, and a README. The [ports] table of
@@ -45,7 +45,7 @@ def add_bench_options(p: argparse.ArgumentParser) -> None:
     """Options shared by ``testbench`` and ``cosim``: spec, RTL, top, samples, seed, gaps, stalls."""
     p.add_argument("spec", metavar="SPEC", help="block spec (TOML)")
     p.add_argument("--rtl", nargs="+", metavar="FILE", default=[],
-                   help="your RTL files (default: the reference core cfar_stream)")
+                   help="your RTL files (default: the reference core cfar_stream; cfar_map for a map spec)")
     p.add_argument("--top", metavar="NAME", help="top module of the RTL (overrides ports.module)")
     p.add_argument("--samples", type=int, metavar="N",
                    help="samples to stream, rounded up to a whole frame (default: the whole vector set)")

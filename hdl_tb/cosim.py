@@ -45,6 +45,7 @@ from typing import Iterator, Mapping, Sequence
 import numpy as np
 
 from refmodel.block_spec import BlockSpec, spec_from_dict
+from refmodel.map_spec import is_map
 from refmodel.errors import SpecError, require
 from refmodel.spec_fields import integer_list
 from vectors.writers import ParseError, parse_fixed
@@ -56,7 +57,7 @@ from .simulators import (DEFAULT_SIMULATOR, LABELS, bench_command, build_verilog
                          cocotb_build_args, cocotb_test_args, find_simulator, first_error, simulator_environment,
                          waves_name)
 from .tb_generator import (COCOTB_MODULE, DEFAULT_GAP_PERCENT, DEFAULT_SINK, DEFAULT_STALL_PERCENT, MODES,
-                           VERILOG_TOP, check_sink, read_config, read_stimulus, whole_frames, write_testbench)
+                           check_sink, read_config, read_stimulus, whole_frames, write_testbench)
 
 RUN_FILE = "cfarvec_run.json"
 SUMMARY_FILE = "cfarvec_summary.json"
@@ -296,8 +297,47 @@ def _report(folder: Path, config: Mapping, where: Path, stim_rel: str, exp_rel: 
     stim = parse_fixed((folder / stim_rel).read_bytes(), "hex", spec.input_bits + 1)[:words]
     expected = parse_fixed((folder / exp_rel).read_bytes(), "hex", spec.output_bits)[:words]
     got = _read_words(received, spec.output_bits)
+    if is_map(spec):
+        return _map_report(spec, stim, expected, got, frames)
     return mismatch_report.analyse(spec, stim, expected, got, mismatch_report.read_manifest(folder),
                                    frame_numbers=frames)
+
+
+def _map_report(spec, stimulus: np.ndarray, expected: np.ndarray, received: np.ndarray,
+                frames: tuple[int, ...] | None) -> dict:
+    """The mismatch report of a map block: the table of first mismatches (map, cell, line and position in
+    the line), the counts per field and the shifted-output hypotheses; the 1D model variants of
+    :func:`hdl_tb.mismatch_report.hypothesis_specs` do not apply to a map."""
+    from refmodel.fixedpoint.word_format import FIELDS, unpack_output
+
+    n = min(expected.shape[0], received.shape[0])
+    exp_f = np.stack([np.asarray(getattr(unpack_output(spec, expected[:n]), f), dtype=np.int64) for f in FIELDS])
+    got_f = np.stack([np.asarray(getattr(unpack_output(spec, received[:n]), f), dtype=np.int64) for f in FIELDS])
+    diff = exp_f != got_f
+    bad = np.flatnonzero(diff.any(axis=0))
+    numbers = list(frames) if frames is not None else list(range(n // spec.map_cells + 1))
+    lf = spec.padded_line - 2 * spec.stream_window[3]
+    report: dict = {"mismatching_words": int(bad.size),
+                    "field_counts": {f: int(diff[k].sum()) for k, f in enumerate(FIELDS)},
+                    "failing_frames": sorted({int(numbers[int(i) // spec.map_cells]) for i in bad}),
+                    "table": [], "hypotheses": [], "explained": []}
+    for i in bad[:mismatch_report.TABLE_ROWS]:
+        cell = int(i) % spec.map_cells
+        row = {"word": int(i), "frame": int(numbers[int(i) // spec.map_cells]), "cell": cell,
+               "source": f"line {cell // lf}", "case": f"position {cell % lf}", "statistic": -1,
+               "reference_sum": None}
+        for k, name in enumerate(FIELDS):
+            row[f"{name}_expected"] = int(exp_f[k, i])
+            row[f"{name}_received"] = int(got_f[k, i])
+        report["table"].append(row)
+    for k in range(-mismatch_report.MAX_SHIFT, mismatch_report.MAX_SHIFT + 1):
+        idx = bad[(bad + k >= 0) & (bad + k < expected.shape[0])] if k else bad[:0]
+        if k and bad.size:
+            hits = int(np.count_nonzero(received[idx] == expected[idx + k])) if idx.size else 0
+            report["hypotheses"].append({"name": f"output shifted by {k} words (received word i is expected "
+                                                 f"word i{k:+d})", "explained": hits, "of": int(bad.size)})
+    report["explained"] = [h["name"] for h in report["hypotheses"] if h["of"] and h["explained"] == h["of"]]
+    return report
 
 
 # --------------------------------------------------------------------------
@@ -493,18 +533,19 @@ def _run_verilog(folder: Path, config: Mapping, where: Path, words: int, setting
                         "which a core of your own need not share",
                         "1..95 with --rtl in verilog mode (or --sink waits-for-valid)")
     flags = ["-f", "bench/timescale.f"] if simulator == "icarus" else []
+    top = m["toplevel"]
     built_at, built_now = where, True
     if build_root is None:
-        start, _ = build_verilog_bench(simulator, sources=m["sources"], parameters=m["parameters"], top=VERILOG_TOP,
+        start, _ = build_verilog_bench(simulator, sources=m["sources"], parameters=m["parameters"], top=top,
                                        folder=folder, build=where, waves=waves, flags=flags)
     else:
         def build(into: Path, max_words: int) -> None:
             build_verilog_bench(simulator, sources=m["sources"], parameters={**m["parameters"], "MAX_WORDS": max_words},
-                                top=VERILOG_TOP, folder=folder, build=into, waves=waves, flags=flags)
+                                top=top, folder=folder, build=into, waves=waves, flags=flags)
 
-        key = design_key(folder, toplevel=VERILOG_TOP, sources=m["sources"], parameters=m["parameters"], waves=waves,
+        key = design_key(folder, toplevel=top, sources=m["sources"], parameters=m["parameters"], waves=waves,
                          simulator=simulator)
-        built_at, _, built_now = shared_build(Path(build_root), f"{VERILOG_TOP}-{simulator}-{key}",
+        built_at, _, built_now = shared_build(Path(build_root), f"{top}-{simulator}-{key}",
                                               max(words, file_words), build)
         start = bench_command(simulator)
         # The image is started from this run's folder, by a path relative to it.
@@ -523,7 +564,7 @@ def _run_verilog(folder: Path, config: Mapping, where: Path, words: int, setting
                     f"+STALL_PERCENT={settings['stall_percent']}", f"+SEED={settings['seed'] & 0x7FFFFFFF}",
                     f"+N_WORDS={words}", f"+SINK_WAITS_FOR_VALID={int(waits)}",
                     f"+GAP_FILE={rel(gap_file)}", f"+STALL_FILE={rel(stall_file)}"]
-    wave_file = where / f"{VERILOG_TOP}.vcd" if waves else None
+    wave_file = where / f"{top}.vcd" if waves else None
     if wave_file is not None:
         args += ["+DUMP", f"+DUMP_FILE={wave_file.name}"]
     t0 = time.perf_counter()
@@ -544,7 +585,7 @@ def _run_verilog(folder: Path, config: Mapping, where: Path, words: int, setting
         problems = (f"{errors} errors, first: {first}",) if found else (
             f"the testbench ended without a summary line (exit code {proc.returncode}): {first_error(log)}",)
     results = where / RESULTS_FILE
-    _write_junit(results, f"verilog[{simulator},seed={settings['seed']}]", f"cfarvec.{VERILOG_TOP}", seconds,
+    _write_junit(results, f"verilog[{simulator},seed={settings['seed']}]", f"cfarvec.{top}", seconds,
                  None if passed else problems[0], {"seed": settings["seed"], "simulator": simulator,
                                                    "gap_percent": settings["gap_percent"],
                                                    "stall_percent": settings["stall_percent"],

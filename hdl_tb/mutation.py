@@ -25,10 +25,17 @@ rounding ties for half-even, a threshold width too narrow for full scale for
 saturate and wrap, a truncated multiplier with a negative digit, each edge
 policy, several pipeline depths.
 
+The map core ``hdl_tb/rtl/cfar_map.v`` has its own campaign
+(:data:`MAP_MUTANTS`, :data:`MAP_CHECK_SPECS`, :data:`MAP_RUNS`, one of which
+resets the core in the middle of a map; :func:`run_map_mutation_check`),
+whose mutants name sections of ``docs/bit-true-2d.md``.
+
 Run it from the command line::
 
     python -m hdl_tb.mutation            # the built-in check specs
-    python -m hdl_tb.mutation SPEC.toml  # one block spec (its [vectors] section sets the vectors)
+    python -m hdl_tb.mutation --map      # the map core and its check specs
+    python -m hdl_tb.mutation SPEC.toml  # one block spec (its [vectors] section sets the vectors; a map spec
+                                         # runs the map campaign)
 
 It prints one line per mutant and ends with ``killed K of N mutants (P %)``;
 the exit status is 0 when every mutant is killed, 1 when one survives, 2 on
@@ -58,7 +65,7 @@ from refmodel.block_spec import BlockSpec, load_spec, spec_from_dict
 from refmodel.errors import SpecError
 from vectors.vector_set import write_vector_set
 
-from .core_params import CORE_SOURCES, core_parameters
+from .core_params import CORE_SOURCES, MAP_CORE_SOURCES, core_parameters, is_map_spec
 from .verilog_bench import BenchResult, run_bench
 
 
@@ -336,11 +343,15 @@ class BenchRun:
     seed: int
     #: ``"independent"`` or ``"waits-for-valid"`` (:data:`hdl_tb.verilog_bench.SINK_MODES`).
     sink: str = "independent"
+    #: Map blocks: pulse the reset in the middle of the second map (the bench expects the words from the
+    #: third map on, which the core must find by its start-of-map marker).
+    reset_mid_map: bool = False
 
     def describe(self) -> str:
         """``gap G stall S seed N`` and, for the waiting sink, ``sink waits-for-valid``."""
         text = f"gap {self.gap_percent} stall {self.stall_percent} seed {self.seed}"
-        return text if self.sink == "independent" else f"{text} sink {self.sink}"
+        text = text if self.sink == "independent" else f"{text} sink {self.sink}"
+        return f"{text} reset mid-map" if self.reset_mid_map else text
 
 
 #: The runs every mutant gets on every set: input gaps and output backpressure on, once with a sink that
@@ -465,8 +476,10 @@ def write_check_sets(specs: Mapping[str, BlockSpec], folder: str | Path) -> list
 
 
 def _run(check: CheckSet, run: BenchRun, build_root: Path, sources: Sequence[Path] | None) -> BenchResult:
+    reset_at = (3 * check.spec.map_cells) // 2 if run.reset_mid_map else None
     return run_bench(check.spec, check.folder, gap_percent=run.gap_percent, stall_percent=run.stall_percent,
-                     seed=run.seed, build_root=build_root, core_sources=sources, sink=run.sink, max_reports=1)
+                     seed=run.seed, build_root=build_root, core_sources=sources, sink=run.sink, max_reports=1,
+                     reset_at=reset_at)
 
 
 def check_unmodified_core(sets: Sequence[CheckSet], runs: Sequence[BenchRun], build_root: str | Path) -> None:
@@ -485,7 +498,7 @@ def check_unmodified_core(sets: Sequence[CheckSet], runs: Sequence[BenchRun], bu
 
 
 def run_mutant(mutant: Mutant, sets: Sequence[CheckSet], runs: Sequence[BenchRun],
-               work_dir: str | Path) -> MutantResult:
+               work_dir: str | Path, core_source: Path = CORE_SOURCES[0]) -> MutantResult:
     """Apply one mutant to a copy of the core and run it until a run fails.
 
     Raises
@@ -497,8 +510,8 @@ def run_mutant(mutant: Mutant, sets: Sequence[CheckSet], runs: Sequence[BenchRun
     """
     folder = Path(work_dir) / "mutants" / mutant.name
     folder.mkdir(parents=True, exist_ok=True)
-    source = folder / CORE_SOURCES[0].name
-    source.write_text(apply_mutant(CORE_SOURCES[0].read_text(encoding="ascii"), mutant), encoding="ascii")
+    source = folder / core_source.name
+    source.write_text(apply_mutant(core_source.read_text(encoding="ascii"), mutant), encoding="ascii")
     n = 0
     for check in sets:
         for run in runs:
@@ -512,7 +525,7 @@ def run_mutant(mutant: Mutant, sets: Sequence[CheckSet], runs: Sequence[BenchRun
 
 def run_mutation_check(specs: Mapping[str, BlockSpec] | None = None, *, mutants: Sequence[Mutant] = MUTANTS,
                        runs: Sequence[BenchRun] = DEFAULT_RUNS, work_dir: str | Path | None = None,
-                       jobs: int = 2) -> MutationReport:
+                       jobs: int = 2, core_source: Path | None = None) -> MutationReport:
     """Write the vector sets, check the unmodified core, then run every mutant.
 
     Parameters
@@ -527,6 +540,9 @@ def run_mutation_check(specs: Mapping[str, BlockSpec] | None = None, *, mutants:
         images (default: a temporary folder, removed afterwards).
     jobs : int, optional
         Mutants simulated at the same time.
+    core_source : path, optional
+        The core the mutants apply to (default ``hdl_tb/rtl/cfar_stream.v``; the map campaign,
+        :func:`run_map_mutation_check`, passes ``hdl_tb/rtl/cfar_map.v``).
 
     Returns
     -------
@@ -542,15 +558,197 @@ def run_mutation_check(specs: Mapping[str, BlockSpec] | None = None, *, mutants:
         A mutant no longer applies to the core source.
     """
     specs = check_specs() if specs is None else specs
+    core_source = CORE_SOURCES[0] if core_source is None else Path(core_source)
     for m in mutants:
-        apply_mutant(CORE_SOURCES[0].read_text(encoding="ascii"), m)  # all stale mutants fail before any work
+        apply_mutant(core_source.read_text(encoding="ascii"), m)  # all stale mutants fail before any work
     with tempfile.TemporaryDirectory(prefix="cfarvec-mutation-") as tmp:
         root = Path(work_dir) if work_dir is not None else Path(tmp)
         sets = write_check_sets(specs, root)
         check_unmodified_core(sets, runs, root / "reference-build")
         with ThreadPoolExecutor(max_workers=max(1, jobs)) as pool:
-            results = list(pool.map(lambda m: run_mutant(m, sets, runs, root), mutants))
+            results = list(pool.map(lambda m: run_mutant(m, sets, runs, root, core_source), mutants))
     return MutationReport(tuple(results))
+
+
+# ---------------------------------------------------------------------------------------------------------
+# The map core hdl_tb/rtl/cfar_map.v (docs/bit-true-2d.md)
+# ---------------------------------------------------------------------------------------------------------
+
+#: Seeded bugs of the map core, each one substitution on ``hdl_tb/rtl/cfar_map.v``; ``breaks`` names a
+#: section of ``docs/bit-true-2d.md`` (``bit-true-2d N``), of ``docs/bit-true.md`` (``bit-true N``, the
+#: arithmetic after the statistic) or the AXI4-Stream handshake and sideband signals.
+MAP_MUTANTS: tuple[Mutant, ...] = (
+    Mutant("map_guard_rectangle_one_row_short",
+           "bit-true-2d 2: the guard rectangle is 2Gd+1 Doppler bins (the mutant counts a guard row as reference)",
+           "localparam integer R1_ND = RING ? GDD : 1;",
+           "localparam integer R1_ND = RING ? GDD - 1 : 1;"),
+    Mutant("map_ring_one_range_column_short",
+           "bit-true-2d 2: the ring spans W_r = 2Hr+1 range cells (the mutant drops the last column)",
+           "localparam integer R0_NR = RING ? (CA ? WR : HR) : REF_RANGE;",
+           "localparam integer R0_NR = RING ? (CA ? WR - 1 : HR) : REF_RANGE;"),
+    Mutant("map_leading_half_takes_the_cut_column",
+           "bit-true-2d 2: the leading half has range offset > 0 (the mutant starts it at offset 0)",
+           "localparam integer R2_R0 = RING ? HR + 1 : (CA ? HR : HR + GUARD_RANGE + 1);",
+           "localparam integer R2_R0 = RING ? HR : (CA ? HR : HR + GUARD_RANGE + 1);"),
+    Mutant("map_cross_lower_doppler_arm_on_the_guard",
+           "bit-true-2d 2: the cross's Doppler arms lie beyond the guard cells (the mutant moves one arm in)",
+           "localparam integer R3_D0 = RING ? REF_DOPPLER : HD + GUARD_DOPPLER + 1;",
+           "localparam integer R3_D0 = RING ? REF_DOPPLER : HD + GUARD_DOPPLER;"),
+    Mutant("map_go_takes_the_smaller_half",
+           "bit-true-2d 4: GO is max(S_lag, S_lead) (the mutant takes the minimum)",
+           "else if (KIND == 1) noise_statistic = (pa >= pb) ? pa : pb;",
+           "else if (KIND == 1) noise_statistic = (pa >= pb) ? pb : pa;"),
+    Mutant("map_sums_not_cleared_at_a_line_start",
+           "bit-true-2d 3: a rectangle sums the columns of the CUT's own padded line (the mutant keeps the "
+           "line before)",
+           "box_reg <= (COL0 + NCOLS == COLS) ? cs_in : {SB{1'b0}};",
+           "box_reg <= box_reg + cs_in - cs_reg[LEAVE_POS*SB +: SB];"),
+    Mutant("map_column_sum_misses_a_first_line",
+           "bit-true-2d 3: a column sum adds the rectangle's n_s rows (the mutant, forming it line by line, "
+           "starts counting the new row one line late)",
+           "localparam integer ADD_FROM = ROWS - ROW0 - NROWS;",
+           "localparam integer ADD_FROM = ROWS - ROW0 - NROWS + 1;"),
+    Mutant("map_running_column_sum_keeps_the_top_row",
+           "bit-true-2d 3: a column sum adds the rectangle's rows of the entering column (the mutant, forming it "
+           "from the line before, keeps that line's top row)",
+           "vs_mem[q] <= cs_in - cs_top;",
+           "vs_mem[q] <= cs_in;"),
+    Mutant("map_leaving_column_off_by_one",
+           "bit-true-2d 3: the column sum leaving is the one now left of the rectangle (the mutant takes the "
+           "next one)",
+           "localparam integer LEAVE_POS = COLS - COL0 - 1;",
+           "localparam integer LEAVE_POS = COLS - COL0;"),
+    Mutant("map_line_buffers_never_written",
+           "bit-true-2d 3: each line buffer hands on the cell it took P_f steps earlier (the mutant keeps its "
+           "first contents)",
+           "lb_mem[q_reg] <= column[WS*IB-1:IB];",
+           "lb_mem[q_reg] <= lb_word;"),
+    Mutant("map_pad_cells_not_zero",
+           "bit-true-2d 2: a pad cell off a zero-pad or skip axis is 0 (the mutant takes the input bus)",
+           "assign enter_value = body ? s_axis_tdata : {IB{1'b0}};",
+           "assign enter_value = s_axis_tdata;"),
+    Mutant("map_fast_wrap_one_cell_late",
+           "bit-true-2d 2: under circular the padded cell at q < H_f is map cell q - H_f + L_f (the mutant "
+           "is one cell on)",
+           "if (q < HF)           fast_index = q + LF - HF;",
+           "if (q < HF)           fast_index = q + LF - HF + 1;"),
+    Mutant("map_slow_wrap_one_line_early",
+           "bit-true-2d 2: under circular the padded line p < H_s is map line p - H_s + L_s (the mutant is one "
+           "line early)",
+           "if (p < HS)           slow_index = p + LS - HS;",
+           "if (p < HS)           slow_index = p + LS - HS - 1;"),
+    Mutant("map_slow_fit_one_line_late",
+           "bit-true-2d 7: the window fits along the slow axis from map index H_s on (the mutant from H_s+1)",
+           "fits_s       = (p_n >= 3 * HS) && (p_n <= LS - 1 + HS);",
+           "fits_s       = (p_n >= 3 * HS + 1) && (p_n <= LS - 1 + HS);"),
+    Mutant("map_skip_ignores_doppler",
+           "bit-true-2d 7: skip along Doppler zeroes T and det where the window does not fit along Doppler",
+           "| ((DOPPLER_EDGE == 0) & ~doppler_fits),",
+           ","),
+    Mutant("map_circular_doppler_not_valid",
+           "bit-true-2d 7: a circular Doppler axis always counts as fitting for window-valid",
+           "range_fits & (doppler_fits | (DOPPLER_EDGE == 3))};",
+           "range_fits & doppler_fits};"),
+    Mutant("map_saturate_wraps",
+           "bit-true 6: saturate gives T = min(T0, 2^W_T - 1) (the mutant wraps modulo 2^W_T)",
+           "if (OVERFLOW == 0 && t0 > T_MAX)",
+           "if (OVERFLOW == 1 && t0 > T_MAX)"),
+    Mutant("map_half_even_rounds_half_up",
+           "bit-true 5: half-even rounds an exact tie to the even value (the mutant rounds it up)",
+           "if ((rnd & RND_MASK) == RND_TIE && t0[0]) t0 = t0 - T_ONE;",
+           ";"),
+    Mutant("map_ge_decides_as_gt",
+           "bit-true 7: compare \">=\" gives det = (C >= T) (the mutant misses C = T)",
+           "((c_cmp << THRESHOLD_FRAC_BITS) >= t)",
+           "((c_cmp << THRESHOLD_FRAC_BITS) > t)"),
+    Mutant("map_line_end_tlast_one_early",
+           "AXI4-Stream: m_axis_tlast marks the word of each line's last cell (the mutant marks the one before)",
+           "cut_line_end = (q_n == 2 * HF + LF - 1);",
+           "cut_line_end = (q_n == 2 * HF + LF - 2);"),
+    Mutant("map_tuser_on_the_second_cell",
+           "AXI4-Stream: m_axis_tuser marks the word of each map's first cell (the mutant marks the second)",
+           "(p_n == 2 * HS) && (q_n == 2 * HF), cut_line_end",
+           "(p_n == 2 * HS) && (q_n == 2 * HF + 1), cut_line_end"),
+    Mutant("map_start_marker_ignored_without_store",
+           "AXI4-Stream: a map starts at the cell with s_axis_tuser (the mutant takes any cell after a reset)",
+           "assign step = advance & ~rst & (~body | (s_axis_tvalid & (~at_first | s_axis_tuser)));",
+           "assign step = advance & ~rst & (~body | s_axis_tvalid);"),
+    Mutant("map_start_marker_ignored_with_store",
+           "AXI4-Stream: a map starts at the cell with s_axis_tuser (the mutant stores any cell after a reset)",
+           "assign w_take = s_axis_tvalid & s_axis_tready & (~w_first | s_axis_tuser);",
+           "assign w_take = s_axis_tvalid & s_axis_tready;"),
+    Mutant("map_line_store_overrun",
+           "bit-true-2d 9: the two line stores hold the line being read and the next (the mutant writes on)",
+           "assign write_ok = (ahead != 2'd2);",
+           "assign write_ok = 1'b1;"),
+    Mutant("map_advance_ignores_tready",
+           "AXI4-Stream: a word stays offered until TREADY takes it (the mutant moves on regardless)",
+           "wire advance   = ~out_valid | m_axis_tready;",
+           "wire advance   = 1'b1;"),
+    Mutant("map_valid_waits_for_ready",
+           "AXI4-Stream: TVALID must not wait for TREADY (ARM IHI 0051A 2.2.1)",
+           "assign m_axis_tvalid = out_valid;",
+           "assign m_axis_tvalid = out_valid & m_axis_tready;"),
+)
+
+#: Check specs of the map core: between them every mutant can show (ties for ">=", half-even ties
+#: with d = 1, a narrow threshold for saturate, guard cells on both axes, both window shapes, GO,
+#: circular on the fast axis (line stores) and on the slow axis (map store), skip, zero-pad without a store).
+MAP_CHECK_SPECS: dict[str, dict] = {
+    # CA ring, doppler-fast, zero-pad range, circular Doppler (two line stores); ">=" and half-even with
+    # A odd and d = 1 (every odd S a tie); a 9-bit threshold saturates at full scale.
+    "map-ca-ring-lines-ge-half-even-saturate": {
+        "detector": {"kind": "ca", "alpha": 39.0, "compare": ">="},
+        "fixed": {"input_bits": 6, "alpha_frac_bits": 1, "rounding": "half-even", "overflow": "saturate",
+                  "threshold_bits": 9},
+        "stream": {"pipeline_stages": 2},
+        "map": {"range_cells": 11, "doppler_bins": 9, "order": "doppler-fast", "window": "ring", "ref_range": 2,
+                "ref_doppler": 1, "guard_range": 1, "guard_doppler": 1, "range_edge": "zero-pad",
+                "doppler_edge": "circular"},
+    },
+    # GO ring, range-fast, zero-pad along range and skip along Doppler (no store: pad cells made by the
+    # core), three stages.
+    "map-go-ring-zero-pad-skip": {
+        "detector": {"kind": "go", "alpha": 3.3, "compare": ">"},
+        "fixed": {"input_bits": 8, "alpha_frac_bits": 5, "rounding": "half-up"},
+        "stream": {"pipeline_stages": 3},
+        "map": {"range_cells": 12, "doppler_bins": 8, "order": "range-fast", "window": "ring", "ref_range": 2,
+                "ref_doppler": 1, "guard_range": 1, "guard_doppler": 1, "range_edge": "zero-pad",
+                "doppler_edge": "skip"},
+    },
+    # CA cross, doppler-fast, circular range (the map store), zero-pad Doppler, four stages.
+    "map-ca-cross-map-store": {
+        "detector": {"kind": "ca", "alpha": 2.1, "compare": ">"},
+        "fixed": {"input_bits": 7, "alpha_frac_bits": 6, "rounding": "half-up"},
+        "stream": {"pipeline_stages": 4},
+        "map": {"range_cells": 10, "doppler_bins": 9, "order": "doppler-fast", "window": "cross", "ref_range": 2,
+                "ref_doppler": 2, "guard_range": 1, "guard_doppler": 1, "range_edge": "circular",
+                "doppler_edge": "zero-pad"},
+    },
+}
+#: ``[vectors]`` of the map check specs (normal and ``CFARVEC_LONG=1`` runs).
+MAP_CHECK_VECTORS = {"seed": 20261205, "scenario_maps": 1, "random_maps": 3}
+MAP_CHECK_VECTORS_LONG = {"seed": 20261206, "scenario_maps": 8, "random_maps": 24}
+#: The map runs: gaps and backpressure with both sinks, and a reset in the middle of a map.
+MAP_RUNS: tuple[BenchRun, ...] = (BenchRun(20, 30, 7), BenchRun(20, 30, 8, "waits-for-valid"),
+                                  BenchRun(10, 10, 9, reset_mid_map=True))
+
+
+def map_check_specs(vectors: Mapping | None = None) -> dict[str, BlockSpec]:
+    """The :data:`MAP_CHECK_SPECS` as map block specs, each with the ``[vectors]`` section ``vectors``."""
+    vec = dict(MAP_CHECK_VECTORS if vectors is None else vectors)
+    return {name: spec_from_dict({**d, "vectors": vec}, source=f"map mutation check spec {name}")
+            for name, d in MAP_CHECK_SPECS.items()}
+
+
+def run_map_mutation_check(specs: Mapping[str, BlockSpec] | None = None, *,
+                           mutants: Sequence[Mutant] = MAP_MUTANTS, runs: Sequence[BenchRun] = MAP_RUNS,
+                           work_dir: str | Path | None = None, jobs: int = 2) -> MutationReport:
+    """:func:`run_mutation_check` on the map core ``hdl_tb/rtl/cfar_map.v`` with :data:`MAP_MUTANTS`
+    (default specs :data:`MAP_CHECK_SPECS`)."""
+    specs = map_check_specs() if specs is None else specs
+    return run_mutation_check(specs, mutants=mutants, runs=runs, work_dir=work_dir, jobs=jobs,
+                              core_source=MAP_CORE_SOURCES[0])
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -560,10 +758,15 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("spec", nargs="?", metavar="SPEC",
                         help="block spec (TOML) to check against; default: the built-in check specs")
     parser.add_argument("--jobs", type=int, default=2, metavar="N", help="mutants simulated at once (default 2)")
+    parser.add_argument("--map", action="store_true",
+                        help="the map core cfar_map and its check specs (a map SPEC selects it too)")
     args = parser.parse_args(argv)
     try:
         specs = {Path(args.spec).stem: load_spec(args.spec)} if args.spec else None
-        report = run_mutation_check(specs, jobs=args.jobs)
+        if args.map or (specs is not None and all(is_map_spec(v) for v in specs.values())):
+            report = run_map_mutation_check(specs, jobs=args.jobs)
+        else:
+            report = run_mutation_check(specs, jobs=args.jobs)
     except (SpecError, StaleMutantError, HarnessError) as exc:
         print(f"mutation check: error: {str(exc).splitlines()[0]}", file=sys.stderr)
         return 2

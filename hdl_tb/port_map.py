@@ -78,11 +78,17 @@ SIGNAL_DEFAULTS = {
 }
 #: Roles that may be mapped to ``""`` (not present on the module).
 OPTIONAL_SIGNALS = ("out_last",)
+#: Map (range-Doppler) blocks: the map reference core ``hdl_tb/rtl/cfar_map.v`` and its stream signals, with
+#: the start-of-map markers on TUSER (``in_last`` / ``out_last`` mark the end of each fast-axis line there).
+MAP_REFERENCE_MODULE = "cfar_map"
+MAP_SIGNAL_DEFAULTS = {**SIGNAL_DEFAULTS, "in_user": "s_axis_tuser", "out_user": "m_axis_tuser"}
+#: Map roles that may be ``""``: the module has no such port (the bench then does not drive or check it).
+MAP_OPTIONAL_SIGNALS = ("in_last", "out_last", "in_user", "out_user")
 #: Output word fields (``docs/bit-true.md`` section 8).
 OUTPUT_FIELDS = ("cut", "threshold", "det", "valid", "last")
 #: Module names the generated testbench uses itself.
 RESERVED_MODULES = ("cfarvec_port_adapter", "cfarvec_bulk_top", "cfarvec_port_probe", "cfar_stream_tb",
-                    "cocotb_iverilog_dump")
+                    "cocotb_iverilog_dump", "cfar_map_tb", "cfarvec_map_shim")
 #: Quantities of the spec a ``[ports.parameters]`` value may name (``BlockSpec`` attributes, the names of the
 #: manifest's ``derived`` table and of the spec fields): the constant A, the widths, the window.
 DERIVED_QUANTITIES = ("alpha_int", "alpha_bits", "drop_bits", "threshold_bits", "threshold_frac_bits", "sum_bits",
@@ -94,6 +100,12 @@ DERIVED_QUANTITIES = ("alpha_int", "alpha_bits", "drop_bits", "threshold_bits", 
 CORE_PARAMETER_NAMES = ("INPUT_BITS", "REF_CELLS", "GUARD_CELLS", "KIND", "OS_RANK", "EDGE", "MAX_FRAME_LENGTH",
                         "SUM_BITS", "ALPHA_INT", "DROP_BITS", "THRESHOLD_FRAC_BITS", "THRESHOLD_BITS", "ROUNDING",
                         "OVERFLOW", "COMPARE_GE", "TRUNCATE_PARTIALS", "PIPELINE_STAGES", "SRST_LEVEL")
+#: Map reference-core parameters (``hdl_tb.core_params.map_core_parameters``).
+MAP_CORE_PARAMETER_NAMES = ("INPUT_BITS", "RANGE_CELLS", "DOPPLER_BINS", "ORDER", "WINDOW", "REF_RANGE",
+                            "REF_DOPPLER", "GUARD_RANGE", "GUARD_DOPPLER", "KIND", "RANGE_EDGE", "DOPPLER_EDGE",
+                            "SUM_BITS", "ALPHA_INT", "DROP_BITS", "THRESHOLD_FRAC_BITS", "THRESHOLD_BITS",
+                            "ROUNDING", "OVERFLOW", "COMPARE_GE", "TRUNCATE_PARTIALS", "PIPELINE_STAGES",
+                            "SRST_LEVEL")
 
 _KEYS = ("module", "clock", "reset", "reset_active", *SIGNAL_DEFAULTS, "core_parameters", "out_data_bits",
          "out_fields", "parameters")
@@ -213,6 +225,8 @@ class PortMap:
     core_parameters: bool
     parameters: Mapping[str, int] = field(default_factory=dict)
     standard_fields: Mapping[str, tuple[int, int]] = field(default_factory=dict)
+    #: True for a map block (reference module ``cfar_map``, the TUSER roles ``in_user`` and ``out_user``).
+    map_block: bool = False
 
     @property
     def standard_layout(self) -> bool:
@@ -223,8 +237,10 @@ class PortMap:
     @property
     def is_reference(self) -> bool:
         """True when this is exactly the reference core's interface (no adapter is needed)."""
-        return (self.module == REFERENCE_MODULE and self.clock == "clk" and self.reset == "srst"
-                and self.reset_active_high and dict(self.signals) == SIGNAL_DEFAULTS and self.standard_layout
+        module, defaults = (MAP_REFERENCE_MODULE, MAP_SIGNAL_DEFAULTS) if self.map_block else (REFERENCE_MODULE,
+                                                                                                 SIGNAL_DEFAULTS)
+        return (self.module == module and self.clock == "clk" and self.reset == "srst"
+                and self.reset_active_high and dict(self.signals) == defaults and self.standard_layout
                 and self.core_parameters and not self.parameters)
 
     def port_names(self) -> dict[str, str]:
@@ -253,6 +269,7 @@ class PortMap:
             "standard_fields": {k: list(v) for k, v in self.standard_fields.items()},
             "core_parameters": self.core_parameters,
             "parameters": dict(self.parameters),
+            "map_block": self.map_block,
         }
 
 
@@ -290,13 +307,19 @@ def port_map_from_spec(spec: BlockSpec, *, top: str | None = None, language: str
     check_identifier = _identifier_check(language)  # noqa: F811 (VHDL names for a VHDL entity)
     raw = spec.sections.get("ports", {})
     require(isinstance(raw, Mapping), "ports", f"got {type(raw).__name__}", "a table")
-    unknown = sorted(set(raw) - set(_KEYS))
-    require(not unknown, f"ports.{unknown[0] if unknown else ''}", "unknown field", ", ".join(_KEYS))
+    map_block = bool(getattr(type(spec), "is_map", False))
+    reference, defaults, optional, core_names = ((MAP_REFERENCE_MODULE, MAP_SIGNAL_DEFAULTS, MAP_OPTIONAL_SIGNALS,
+                                                  MAP_CORE_PARAMETER_NAMES) if map_block else
+                                                 (REFERENCE_MODULE, SIGNAL_DEFAULTS, OPTIONAL_SIGNALS,
+                                                  CORE_PARAMETER_NAMES))
+    keys = _KEYS + (("in_user", "out_user") if map_block else ())
+    unknown = sorted(set(raw) - set(keys))
+    require(not unknown, f"ports.{unknown[0] if unknown else ''}", "unknown field", ", ".join(keys))
 
     if top is not None:
         module = check_identifier("--top", top)
     else:
-        module = check_identifier("ports.module", raw.get("module", REFERENCE_MODULE))
+        module = check_identifier("ports.module", raw.get("module", reference))
     require(module not in RESERVED_MODULES, "--top" if top is not None else "ports.module",
             f"got {module!r}, a module name the generated testbench uses itself",
             f"any other name than {', '.join(RESERVED_MODULES)}")
@@ -306,9 +329,9 @@ def port_map_from_spec(spec: BlockSpec, *, top: str | None = None, language: str
     require(level in ("high", "low"), "ports.reset_active", f"got {level!r}", '"high" or "low"')
 
     signals: dict[str, str | None] = {}
-    for role, default in SIGNAL_DEFAULTS.items():
+    for role, default in defaults.items():
         value = raw.get(role, default)
-        if role in OPTIONAL_SIGNALS and value == "":
+        if role in optional and value == "":
             signals[role] = None
             continue
         signals[role] = check_identifier(f"ports.{role}", value)
@@ -321,7 +344,7 @@ def port_map_from_spec(spec: BlockSpec, *, top: str | None = None, language: str
                 "a different port for each role")
         seen[key] = role
 
-    core = raw.get("core_parameters", module == REFERENCE_MODULE)
+    core = raw.get("core_parameters", module == reference)
     require(isinstance(core, bool), "ports.core_parameters", f"got {core!r}", "true or false")
 
     params_raw = raw.get("parameters", {})
@@ -330,7 +353,7 @@ def port_map_from_spec(spec: BlockSpec, *, top: str | None = None, language: str
     params: dict[str, int] = {}
     for name, value in params_raw.items():
         check_identifier(f"ports.parameters.{name}", name)
-        require(not (core and name in CORE_PARAMETER_NAMES), f"ports.parameters.{name}",
+        require(not (core and name in core_names), f"ports.parameters.{name}",
                 "is already given by core_parameters = true", "another name, or core_parameters = false")
         if isinstance(value, str):
             quantity = choice(f"ports.parameters.{name}", value, DERIVED_QUANTITIES)
@@ -366,6 +389,7 @@ def port_map_from_spec(spec: BlockSpec, *, top: str | None = None, language: str
         module=module, clock=clock, reset=reset, reset_active_high=(level == "high"),
         signals=MappingProxyType(signals), out_data_bits=bits, out_fields=MappingProxyType(out_fields),
         core_parameters=core, parameters=MappingProxyType(params), standard_fields=MappingProxyType(dict(standard)),
+        map_block=map_block,
     )
 
 

@@ -20,6 +20,12 @@ Verilog:
 ``bench_config.json``, ``Makefile``, ``README.md``
     the settings every bench reads, the commands, a short description.
 
+For a map (range-Doppler) spec the reference core is ``cfar_map``, the
+pure-Verilog bench ``cfar_map_tb.v``, the adapter presents the module with
+the map core's interface (TUSER at each map's start, TLAST at each line's
+end), and ``bench/cfarvec_map_shim.v`` stands between the bulk driver and
+the adapter (``docs/testbench.md``, "Map (range-Doppler) blocks").
+
 Generated text comes from ``hdl_tb/templates/`` through
 :class:`string.Template` with ``@@`` as the delimiter (so Verilog's ``$``
 system tasks and braces need no escaping). Only validated values are
@@ -55,10 +61,10 @@ from vectors.manifest import tool_version
 from vectors.vector_set import vector_settings, write_vector_set
 from vectors.writers import parse_fixed
 
-from .core_params import BENCH_SOURCE, CORE_SOURCES, core_parameters
-from .pause_pattern import file_name as pattern_file_name
+from .core_params import BENCH_SOURCE, MAP_BENCH_SOURCE, MAP_BENCH_TOP, core_files, core_parameters
+from .core_params import is_map_spec
 from .pause_pattern import write_pattern
-from .simulators import DEFAULT_SIMULATOR, SIMULATORS, VERILATOR_FLAGS, check_simulator
+from .simulators import DEFAULT_SIMULATOR, VERILATOR_FLAGS, check_simulator
 from .port_map import PortMap, check_against_rtl, port_map_from_spec, verilog_literal
 
 TEMPLATE_DIR = Path(__file__).resolve().parent / "templates"
@@ -70,6 +76,9 @@ PYTEST_FILE = "test_cfarvec_cosim.py"
 ADAPTER_TOP = "cfarvec_port_adapter"
 BULK_TOP = "cfarvec_bulk_top"
 VERILOG_TOP = "cfar_stream_tb"
+#: Map blocks: the pure-Verilog bench, and the shim between the bulk driver and the map adapter.
+MAP_VERILOG_TOP = MAP_BENCH_TOP
+MAP_SHIM_TOP = "cfarvec_map_shim"
 MODES = ("bulk", "interactive", "verilog", "vhdl")  # vhdl: the pure-VHDL bench (hdl_tb.vhdl_bench)
 DEFAULT_GAP_PERCENT = 20
 DEFAULT_STALL_PERCENT = 30
@@ -97,6 +106,16 @@ _PARAMETER_COMMENTS = {
     "TRUNCATE_PARTIALS": "1 = truncated shift-and-add multiplier.",
     "PIPELINE_STAGES": "Register stages after the window.",
     "SRST_LEVEL": "Level of srst that resets: 1 = high, 0 = low.",
+    "RANGE_CELLS": "Range cells of a map.",
+    "DOPPLER_BINS": "Doppler bins of a map.",
+    "ORDER": "Streaming order: 0 = doppler-fast, 1 = range-fast.",
+    "WINDOW": "Window shape: 0 = ring, 1 = cross.",
+    "REF_RANGE": "Reference cells along range, each side.",
+    "REF_DOPPLER": "Reference cells along Doppler, each side.",
+    "GUARD_RANGE": "Guard cells along range, each side.",
+    "GUARD_DOPPLER": "Guard cells along Doppler, each side.",
+    "RANGE_EDGE": "Edge policy along range: 0 = skip, 1 = zero-pad, 3 = circular.",
+    "DOPPLER_EDGE": "Edge policy along Doppler: 0 = skip, 1 = zero-pad, 3 = circular.",
 }
 
 
@@ -228,7 +247,94 @@ def bulk_top_source(bench: Mapping[str, int], max_words: int) -> str:
                   max_words=max_words, parameter_pass=passing)
 
 
+def map_adapter_source(pm: PortMap, bench: Mapping[str, int]) -> str:
+    """``cfarvec_port_adapter.v`` of a map block: the module under test behind ``cfar_map``'s interface."""
+    user = {}
+    if pm.core_parameters:
+        user.update({name: name for name in bench})
+        user["SRST_LEVEL"] = "1" if pm.reset_active_high else "0"
+    user.update({k: verilog_literal(v) for k, v in pm.parameters.items()})
+    override = ""
+    if user:
+        inner = ",\n".join(f"        .{k}({v})" for k, v in user.items())
+        override = f"#(\n{inner}\n    ) "
+    sig = pm.signals
+    conns = [(pm.clock, "clk"), (pm.reset, "dut_reset"),
+             (sig["in_data"], "s_axis_tdata"), (sig["in_valid"], "s_axis_tvalid"),
+             (sig["in_ready"], "s_axis_tready"), (sig["in_last"], "s_axis_tlast"), (sig["in_user"], "s_axis_tuser"),
+             (sig["out_data"], "dut_out_data"), (sig["out_valid"], "m_axis_tvalid"),
+             (sig["out_ready"], "m_axis_tready"), (sig["out_last"], "dut_out_last"),
+             (sig["out_user"], "dut_out_user")]
+    connections = ",\n".join(f"        .{port}({wire})" for port, wire in conns if port is not None)
+    assigns = []
+    for name, (lsb, width) in pm.out_fields.items():
+        std_lsb, _ = pm.standard_fields[name]
+        assigns.append(f"    // {name}")
+        assigns.append(f"    assign m_axis_tdata{_bits(std_lsb, width)} = dut_out_data{_bits(lsb, width)};")
+    extra = []
+    for role, port, made in (("out_last", "m_axis_tlast", "(out_j_reg == LF - 1)"),
+                             ("out_user", "m_axis_tuser", "out_first_reg")):
+        wire = "dut_out_last" if role == "out_last" else "dut_out_user"
+        if sig[role] is not None:
+            extra.append(f"    assign {port} = {wire};")
+        else:
+            extra.append(f"    // The module has no {role} port: made from the count of output transfers.")
+            extra.append(f"    assign {wire} = 1'b0;")
+            extra.append(f"    assign {port} = {made};")
+    counter = ""
+    if sig["out_last"] is None or sig["out_user"] is None:
+        counter = """\
+    // Cells of a fast-axis line, the bits of the output position counter, the output word width.
+    localparam integer LF = (ORDER == 1) ? RANGE_CELLS : DOPPLER_BINS;
+    localparam integer JB = (LF > 1) ? $clog2(LF) : 1;
+    localparam integer OUT_W = INPUT_BITS + THRESHOLD_BITS + 3;
+
+    // Position of the next output word in its line, and whether it starts a map (from the transfers).
+    reg [JB-1:0] out_j_reg;
+    reg          out_first_reg;
+    always @(posedge clk) begin
+        if (bench_reset) begin
+            out_j_reg     <= {JB{1'b0}};
+            out_first_reg <= 1'b1;
+        end else if (m_axis_tvalid && m_axis_tready) begin
+            out_j_reg     <= (out_j_reg == LF - 1 || m_axis_tdata[OUT_W-1]) ? {JB{1'b0}} : out_j_reg + 1'b1;
+            out_first_reg <= m_axis_tdata[OUT_W-1];
+        end
+    end
+"""
+    return render(
+        "port_adapter_map.v.tmpl", version=tool_version(), module=pm.module, clock=pm.clock, reset=pm.reset,
+        counter_block=counter,
+        reset_level="high" if pm.reset_active_high else "low", out_data_bits=pm.out_data_bits,
+        parameter_block=_parameter_block(bench, trailing_comma=False),
+        reset_expr="bench_reset" if pm.reset_active_high else "~bench_reset",
+        out_data_msb=pm.out_data_bits - 1, parameter_override=override, connections=connections,
+        field_assigns="\n".join(assigns), last_user_assigns="\n".join(extra),
+    )
+
+
+def map_shim_source(bench: Mapping[str, int]) -> str:
+    """``cfarvec_map_shim.v``: the one-dimensional interface of the bulk driver around the map adapter."""
+    passing = ",\n".join(f"        .{name}({name})" for name in bench)
+    return render("map_shim.v.tmpl", version=tool_version(), parameter_block=_parameter_block(bench, False),
+                  parameter_pass=passing)
+
+
 _TB_INSTANCE = re.compile(r"\bcfar_stream(\s*#\s*\()")
+_MAP_TB_INSTANCE = re.compile(r"\bcfar_map(\s*#\s*\()")
+
+
+def map_verilog_bench_source(through_adapter: bool) -> str:
+    """``cfar_map_tb.v``, instantiating the adapter instead of ``cfar_map`` when asked."""
+    text = MAP_BENCH_SOURCE.read_text(encoding="utf-8")
+    if not through_adapter:
+        return text
+    found = _MAP_TB_INSTANCE.findall(text)
+    if len(found) != 1:
+        raise RuntimeError(f"{MAP_BENCH_SOURCE.name} instantiates cfar_map {len(found)} times; expected once")
+    note = ("// Generated by cfarvec: a copy of hdl_tb/rtl/cfar_map_tb.v whose device under test is\n"
+            "// cfarvec_port_adapter (the module under test behind the map reference core's interface).\n")
+    return note + _MAP_TB_INSTANCE.sub(rf"{ADAPTER_TOP}\1", text, count=1)
 
 
 def verilog_bench_source(through_adapter: bool) -> str:
@@ -265,6 +371,8 @@ def _with_vectors(spec: BlockSpec, **changes) -> BlockSpec:
 
 def _write_vectors(spec: BlockSpec, folder: Path, seed: int | None, samples: int | None) -> dict:
     """Write the set; with ``samples``, add random frames until it holds at least that many samples."""
+    if is_map_spec(spec):
+        return _write_map_vectors(spec, folder, seed, samples)
     vspec = spec
     for _ in range(8):
         manifest = write_vector_set(vspec, folder, seed=seed, force=True)
@@ -276,6 +384,20 @@ def _write_vectors(spec: BlockSpec, folder: Path, seed: int | None, samples: int
         more = math.ceil((samples - total) / mean * 1.05) + 1
         vspec = _with_vectors(vspec, random_frames=settings.random_frames + more)
     raise SpecError("--samples", f"could not make a vector set of {samples} samples", "a smaller number")
+
+
+def _write_map_vectors(spec, folder: Path, seed: int | None, samples: int | None) -> dict:
+    """The vector set of a map block; with ``samples``, random maps are added until it holds that many cells."""
+    manifest = write_vector_set(spec, folder, seed=seed, force=True)
+    total = manifest["totals"]["samples"]
+    if samples is None or total >= samples:
+        return manifest
+    settings = vector_settings(spec, seed=seed)
+    more = math.ceil((samples - total) / spec.map_cells)
+    require(settings.random_maps + more <= 1 << 20, "--samples", f"{samples} cells need too many maps",
+            "a smaller number")
+    return write_vector_set(_with_vectors(spec, random_maps=settings.random_maps + more), folder, seed=seed,
+                            force=True)
 
 
 def read_stimulus(folder: str | Path, config: Mapping) -> np.ndarray:
@@ -395,7 +517,7 @@ def write_testbench(spec: BlockSpec, output: str | Path, *, rtl: Sequence[str | 
     reference = not rtl_files
     if reference:
         core_parameters(spec)  # refuses what the reference core lacks, naming the field
-        rtl_files = list(CORE_SOURCES)
+        rtl_files = list(core_files(spec)["sources"])
     bench = bench_parameters(spec)
     dut_params = module_parameters(pm, bench)
     gap_percent = _check_percent("--gaps", gap_percent)
@@ -462,19 +584,30 @@ def _generate(folder: Path, spec: BlockSpec, pm: PortMap, rtl_files: list[Path],
     # The default gap and stall patterns, so that `make verilog` needs no Python with the default knobs.
     for stream, percent in (("gaps", gap_percent), ("stalls", stall_percent)):
         write_pattern(folder / "patterns", stream, percent, bench_seed)
-    (bench_dir / f"{ADAPTER_TOP}.v").write_text(adapter_source(pm, bench), encoding="ascii")
-    (bench_dir / f"{BULK_TOP}.v").write_text(bulk_top_source(bench, max_words), encoding="ascii")
     direct = pm.is_reference
-    (bench_dir / f"{VERILOG_TOP}.v").write_text(verilog_bench_source(not direct), encoding="ascii")
-    adapter = [f"bench/{ADAPTER_TOP}.v"]
+    map_block = is_map_spec(spec)
+    verilog_top = MAP_VERILOG_TOP if map_block else VERILOG_TOP
+    if map_block:
+        # The bulk driver reaches the map adapter through the shim (TUSER and line TLAST made and checked there).
+        bulk = bulk_top_source(bench, max_words).replace(f"{ADAPTER_TOP} #(", f"{MAP_SHIM_TOP} #(", 1)
+        (bench_dir / f"{ADAPTER_TOP}.v").write_text(map_adapter_source(pm, bench), encoding="ascii")
+        (bench_dir / f"{MAP_SHIM_TOP}.v").write_text(map_shim_source(bench), encoding="ascii")
+        (bench_dir / f"{BULK_TOP}.v").write_text(bulk, encoding="ascii")
+        (bench_dir / f"{verilog_top}.v").write_text(map_verilog_bench_source(not direct), encoding="ascii")
+        adapter = [f"bench/{ADAPTER_TOP}.v", f"bench/{MAP_SHIM_TOP}.v"]
+    else:
+        (bench_dir / f"{ADAPTER_TOP}.v").write_text(adapter_source(pm, bench), encoding="ascii")
+        (bench_dir / f"{BULK_TOP}.v").write_text(bulk_top_source(bench, max_words), encoding="ascii")
+        (bench_dir / f"{VERILOG_TOP}.v").write_text(verilog_bench_source(not direct), encoding="ascii")
+        adapter = [f"bench/{ADAPTER_TOP}.v"]
 
     modes = {
         "bulk": {"toplevel": BULK_TOP, "sources": rtl + adapter + [f"bench/{BULK_TOP}.v"],
                  "parameters": {**bench, "MAX_WORDS": max_words}, "testcase": "bulk_stream"},
         "interactive": {"toplevel": BULK_TOP, "sources": rtl + adapter + [f"bench/{BULK_TOP}.v"],
                         "parameters": {**bench, "MAX_WORDS": max_words}, "testcase": "interactive_stream"},
-        "verilog": {"toplevel": VERILOG_TOP,
-                    "sources": rtl + ([] if direct else adapter) + [f"bench/{VERILOG_TOP}.v"],
+        "verilog": {"toplevel": verilog_top,
+                    "sources": rtl + ([] if direct else adapter[:1]) + [f"bench/{verilog_top}.v"],
                     "parameters": {**bench, "MAX_WORDS": max_words}},
     }
     config = {
@@ -493,7 +626,10 @@ def _generate(folder: Path, spec: BlockSpec, pm: PortMap, rtl_files: list[Path],
         "input_bits": spec.input_bits,
         "output_bits": spec.output_bits,
         "fields": {k: list(v) for k, v in output_field_offsets(spec).items()},
-        "half_window": spec.half_window,
+        # Map blocks: the cycles of one padded map and a window delay, which bound every stretch without a
+        # transfer (the benches size their watchdog and tail from it as from R + G of a 1D block).
+        "half_window": (spec.padded_lines * spec.padded_line + spec.window_delay) if map_block else spec.half_window,
+        "map_block": map_block,
         "pipeline_stages": spec.pipeline_stages,
         "gap_percent": gap_percent,
         "stall_percent": stall_percent,
@@ -516,7 +652,8 @@ def _generate(folder: Path, spec: BlockSpec, pm: PortMap, rtl_files: list[Path],
 
 def _makefile(config: dict) -> str:
     m = config["modes"]["verilog"]
-    params = " \\\n".join(f"\t  -P{VERILOG_TOP}.{k}={v}" for k, v in m["parameters"].items()) + " \\"
+    top = m["toplevel"]
+    params = " \\\n".join(f"\t  -P{top}.{k}={v}" for k, v in m["parameters"].items()) + " \\"
     vparams = " \\\n".join(f"\t  -G{k}={v}" for k, v in m["parameters"].items()) + " \\"
     # The interpreter that has cfarvec (and so cocotb) installed, when its path is safe to write unquoted.
     python = sys.executable if sys.executable and _SAFE_PATH.fullmatch(sys.executable) else "python3"
@@ -525,16 +662,27 @@ def _makefile(config: dict) -> str:
                   sink=config["sink"], simulator=config["simulator"],
                   verilator_flags=" ".join(f"'{f}'" if " " in f else f for f in VERILATOR_FLAGS),
                   verilog_sources=" ".join(m["sources"]), verilog_parameters=params,
-                  verilator_parameters=vparams, stimulus=config["stimulus"], expected=config["expected"])
+                  verilator_parameters=vparams, stimulus=config["stimulus"], expected=config["expected"]
+                  ).replace(VERILOG_TOP, top)
 
 
 def _readme(spec: BlockSpec, pm: PortMap, config: dict, reference: bool) -> str:
     sig = pm.signals
-    block = (f"{spec.kind.upper()} CFAR, R = {spec.ref_per_side} reference and G = {spec.guard_per_side} guard "
-             f"cells per side, edge policy {spec.edge}, {spec.input_bits}-bit samples, {spec.threshold_bits}-bit "
-             f"threshold ({spec.rounding}, {spec.overflow})")
+    if is_map_spec(spec):
+        w = spec.window
+        block = (f"{spec.kind.upper()} range-Doppler CFAR on {spec.range_cells} x {spec.doppler_bins} maps "
+                 f"({spec.order}), {w.shape} window of {w.wd} x {w.wr} cells (guard rectangle "
+                 f"{2 * w.guard_doppler + 1} x {2 * w.guard_range + 1}), edges {spec.range_edge} along range and "
+                 f"{spec.doppler_edge} along Doppler, {spec.input_bits}-bit cells, {spec.threshold_bits}-bit "
+                 f"threshold ({spec.rounding}, {spec.overflow}); TLAST ends each fast-axis line, TUSER starts "
+                 "each map")
+    else:
+        block = (f"{spec.kind.upper()} CFAR, R = {spec.ref_per_side} reference and G = {spec.guard_per_side} "
+                 f"guard cells per side, edge policy {spec.edge}, {spec.input_bits}-bit samples, "
+                 f"{spec.threshold_bits}-bit threshold ({spec.rounding}, {spec.overflow})")
+    reference_top = core_files(spec)["top"]
     if reference:
-        rtl_note = "a copy of the reference core (`cfar_stream`)"
+        rtl_note = f"a copy of the reference core (`{reference_top}`)"
     elif config["rtl_copies"]:
         rtl_note = (f"copies of the RTL under test (top module `{pm.module}`), whose paths a Makefile cannot "
                     f"hold; every `cfarvec` run refreshes them from {', '.join(config['rtl_copies'].values())}, "
@@ -542,7 +690,7 @@ def _readme(spec: BlockSpec, pm: PortMap, config: dict, reference: bool) -> str:
     else:
         rtl_note = (f"nothing: the RTL under test (top module `{pm.module}`) is used where it is "
                     f"({', '.join(config['rtl'])}), so every run builds the current files")
-    return render(
+    text = render(
         "README.md.tmpl", version=tool_version(), module=pm.module,
         spec_name=Path(spec.source).name if spec.source else "a block spec", block=block,
         words=config["words"], total_words=config["total_words"], frames=config["frames"],
@@ -555,6 +703,7 @@ def _readme(spec: BlockSpec, pm: PortMap, config: dict, reference: bool) -> str:
         in_ports=", ".join(sig[r] for r in ("in_data", "in_valid", "in_ready", "in_last")),
         out_ports=", ".join(s for s in (sig[r] for r in ("out_data", "out_valid", "out_ready", "out_last")) if s),
     )
+    return text.replace(VERILOG_TOP, config["modes"]["verilog"]["toplevel"])
 
 
 def read_config(folder: str | Path) -> dict:

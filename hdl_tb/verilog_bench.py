@@ -5,7 +5,10 @@ expected-output hex file with ``$readmemh``, drives the core with optional
 seeded input gaps and output backpressure, compares every output word and
 prints one summary line (``PASS n`` or ``FAIL n first=...``). This module
 builds it for a block spec (one compiled image per parameter set, cached),
-runs it with ``vvp`` and returns a :class:`BenchResult`.
+runs it with ``vvp`` and returns a :class:`BenchResult`. For a map
+(range-Doppler) spec it builds and runs ``hdl_tb/rtl/cfar_map_tb.v`` around
+the map core ``cfar_map`` instead (the same knobs, plus ``reset_at``, a
+reset in the middle of a map).
 
 The output sink has two modes (:data:`SINK_MODES`): ``"independent"`` draws
 ``m_axis_tready`` every cycle without looking at ``m_axis_tvalid``;
@@ -34,7 +37,8 @@ from typing import Mapping, Sequence
 from refmodel.block_spec import BlockSpec
 from refmodel.errors import SpecError
 
-from .core_params import BENCH_SOURCE, BENCH_TOP, CORE_SOURCES, core_parameters
+from .core_params import (BENCH_SOURCE, BENCH_TOP, CORE_SOURCES, MAP_BENCH_SOURCE, MAP_BENCH_TOP, MAP_CORE_SOURCES,
+                          core_parameters)
 from .simulators import icarus_tools
 
 #: Default file names inside a vector folder.
@@ -132,7 +136,7 @@ def _source_digest(sources: Sequence[Path]) -> str:
 
 def compile_bench(params: Mapping[str, int], *, max_words: int = 65536, generation: str = "2005",
                   build_root: str | Path | None = None, core_sources: Sequence[str | Path] | None = None,
-                  bench_source: str | Path | None = None) -> Path:
+                  bench_source: str | Path | None = None, bench_top: str | None = None) -> Path:
     """Compile the testbench for one set of core parameters; return the ``vvp`` image.
 
     Parameters
@@ -151,6 +155,9 @@ def compile_bench(params: Mapping[str, int], *, max_words: int = 65536, generati
     core_sources, bench_source : optional
         Verilog files to use instead of the reference core and the
         testbench (for example a modified copy of either).
+    bench_top : str, optional
+        Top module of the bench. Default: ``cfar_map_tb`` with the map core's sources when
+        ``params`` are those of the map core (they hold ``RANGE_CELLS``), else ``cfar_stream_tb``.
 
     Returns
     -------
@@ -169,9 +176,16 @@ def compile_bench(params: Mapping[str, int], *, max_words: int = 65536, generati
     if generation not in ("2005", "2012"):
         raise SpecError("generation", f"got {generation!r}", '"2005" or "2012"')
     all_params = {**{k: int(v) for k, v in params.items()}, "MAX_WORDS": max(1, int(max_words))}
-    sources = [Path(p).resolve() for p in (core_sources if core_sources is not None else CORE_SOURCES)]
-    sources.append(Path(bench_source).resolve() if bench_source is not None else BENCH_SOURCE)
-    key = hashlib.sha256(repr((sorted(all_params.items()), generation, [str(p) for p in sources],
+    is_map = "RANGE_CELLS" in all_params
+    if bench_top is None:
+        bench_top = MAP_BENCH_TOP if is_map else BENCH_TOP
+    if core_sources is None:
+        core_sources = MAP_CORE_SOURCES if is_map else CORE_SOURCES
+    if bench_source is None:
+        bench_source = MAP_BENCH_SOURCE if is_map else BENCH_SOURCE
+    sources = [Path(p).resolve() for p in core_sources]
+    sources.append(Path(bench_source).resolve())
+    key = hashlib.sha256(repr((sorted(all_params.items()), generation, bench_top, [str(p) for p in sources],
                                _source_digest(sources))).encode()).hexdigest()[:16]
     root = Path(build_root) if build_root is not None else _default_build_root()
     out_dir = root / key
@@ -180,8 +194,8 @@ def compile_bench(params: Mapping[str, int], *, max_words: int = 65536, generati
         return image
     out_dir.mkdir(parents=True, exist_ok=True)
     tmp = out_dir / f"bench.{os.getpid()}.tmp"
-    cmd = [iverilog, f"-g{generation}", "-o", str(tmp), "-s", BENCH_TOP]
-    cmd += [f"-P{BENCH_TOP}.{name}={value}" for name, value in all_params.items()]
+    cmd = [iverilog, f"-g{generation}", "-o", str(tmp), "-s", bench_top]
+    cmd += [f"-P{bench_top}.{name}={value}" for name, value in all_params.items()]
     cmd += [str(src) for src in sources]
     proc = subprocess.run(cmd, capture_output=True, text=True)
     output = proc.stdout + proc.stderr
@@ -205,7 +219,7 @@ def run_bench(spec: BlockSpec | Mapping[str, int], folder: str | Path, *,
               build_root: str | Path | None = None, timeout_cycles: int = 0,
               core_sources: Sequence[str | Path] | None = None,
               bench_source: str | Path | None = None, sink: str = "independent",
-              max_reports: int = 10, watchdog_cycles: int = 0) -> BenchResult:
+              max_reports: int = 10, watchdog_cycles: int = 0, reset_at: int | None = None) -> BenchResult:
     """Run the pure-Verilog testbench on a folder of stimulus and expected hex files.
 
     Parameters
@@ -250,6 +264,9 @@ def run_bench(spec: BlockSpec | Mapping[str, int], folder: str | Path, *,
         Error lines the bench prints in full; every error is counted.
     watchdog_cycles : int, optional
         Deadlock bound of the waiting sink; 0 = the bench's automatic bound.
+    reset_at : int, optional
+        Map blocks only: pulse the reset after the input transfer of this stimulus word (a
+        mid-map reset); the bench then expects the words from the next map on.
 
     Returns
     -------
@@ -266,7 +283,11 @@ def run_bench(spec: BlockSpec | Mapping[str, int], folder: str | Path, *,
     RuntimeError
         When the simulation ends without its summary line.
     """
-    params = core_parameters(spec) if isinstance(spec, BlockSpec) else dict(spec)
+    params = dict(spec) if isinstance(spec, Mapping) else core_parameters(spec)
+    is_map = "RANGE_CELLS" in params
+    if reset_at is not None and not (is_map and isinstance(reset_at, int) and not isinstance(reset_at, bool)
+                                     and 0 <= reset_at < 2**31):
+        raise SpecError("reset_at", f"got {reset_at!r}", "an integer >= 0, for a map block")
     for name, pct in (("gap_percent", gap_percent), ("stall_percent", stall_percent)):
         if not (isinstance(pct, int) and 0 <= pct <= 95):
             raise SpecError(name, f"got {pct!r}", "an integer 0..95")
@@ -297,6 +318,8 @@ def run_bench(spec: BlockSpec | Mapping[str, int], folder: str | Path, *,
             f"+SINK_WAITS_FOR_VALID={int(sink == 'waits-for-valid')}", f"+MAX_REPORTS={max_reports}",
             f"+WATCHDOG_CYCLES={watchdog_cycles}"]
     args += [f"+N_WORDS={n_stim}", f"+N_EXPECT={n_exp}"]
+    if reset_at is not None:
+        args.append(f"+RESET_AT={reset_at}")
     if dump is not None:
         args += ["+DUMP", f"+DUMP_FILE={Path(dump).resolve()}"]
     proc = subprocess.run(args, capture_output=True, text=True, cwd=image.parent)

@@ -138,7 +138,7 @@ def check_against_vhdl(port_map: PortMap, rtl_files: Sequence[str | Path], *, pa
                     f"std_logic_vector (or std_ulogic_vector) of {widths[role]} bits"
                 raise SpecError(field, f"port {name!r} of {port_map.module!r} has another type than the "
                                 f"testbench's {kind}", f"a port of type {kind}")
-            raise SpecError(field, f"port {name!r} of {port_map.module!r}: {message}", f"a port the testbench can drive")
+            raise SpecError(field, f"port {name!r} of {port_map.module!r}: {message}", "a port the testbench can drive")
         if line == instance:
             quoted = _QUOTED.search(message)
             thing = quoted.group(1) if quoted else "?"

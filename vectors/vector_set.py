@@ -24,7 +24,6 @@ renamed into place only when complete; any failure (an exception or
 
 from __future__ import annotations
 
-import math
 from dataclasses import asdict, dataclass
 from pathlib import Path
 from typing import Any, Iterator, Mapping

@@ -214,7 +214,6 @@ def run_trials(spec: BlockSpec, noise_lsb: float, trials: int, rng: np.random.Ge
     TrialCounts
     """
     n_cells = spec.n_ref + 1
-    top = float((1 << spec.input_bits) - 1)
     full = float(1 << spec.input_bits) - (0.5 if converter == "round" else 0.0)
     buf = np.empty((chunk, n_cells))
     det_total = sat_total = clip_total = 0
