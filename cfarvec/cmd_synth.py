@@ -37,7 +37,8 @@ LUT RAMs)."""
 #: Rows of the text table: (label, SynthReport.summary() key); "other" is what no class counts
 #: (for example inverters and wide multiplexers of the xilinx flow).
 ROWS = (("LUTs", "luts"), ("flip-flops", "flip_flops"), ("DSP blocks", "dsps"), ("carries", "carries"),
-        ("SRLs", "srls"), ("simple gates", "gates"), ("other", "other"), ("total cells", "cells"))
+        ("SRLs", "srls"), ("block RAMs", "brams"), ("LUT RAMs", "lutrams"), ("simple gates", "gates"),
+        ("other", "other"), ("total cells", "cells"))
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
@@ -67,28 +68,18 @@ def format_table(spec_name: str, counts: dict, top: str = "cfar_stream") -> str:
     other = counts["cells"] - sum(counts[key] for _, key in ROWS[:-2])
     lines = [f"{top} for {spec_name}, Yosys flow {counts['flow']}"]
     lines += [f"  {label:<13}{other if key == 'other' else counts[key]:>8}" for label, key in ROWS]
+    lines.append(f"  {'RAM bits':<13}{counts['memory_bits']:>8}  (capacity of the block and LUT RAMs)")
     return "\n".join(lines)
 
 
-#: RAM primitives and the bits each holds: block RAMs (Xilinx 7-series RAMB18E1 / RAMB36E1, Xilinx UG473
-#: "7 Series FPGAs Memory Resources", 2019, ch. 1; Lattice iCE40 SB_RAM40_4K, Lattice TN1250 "Memory Usage
-#: Guide for iCE40 Devices", 2014) and distributed LUT RAMs (Xilinx UG474, ch. 5).
-BLOCK_RAMS = {"RAMB18E1": 18 * 1024, "RAMB36E1": 36 * 1024, "SB_RAM40_4K": 4 * 1024}
-LUT_RAMS = ("RAM32M", "RAM64M", "RAM32X1D", "RAM64X1D", "RAM128X1D", "RAM256X1S", "RAM32X1S", "RAM64X1S",
-            "RAM128X1S")
-
-
-def map_memory(spec, cells: dict) -> dict:
-    """The map core's memory: what it holds (``design_memory_bits``: line buffers, input store and the
-    column sums of the line before, one word of W_S bits per padded-line cell and rectangle,
-    ``docs/reference-core-2d.md``) and what Yosys mapped it to (``block_rams``, their ``block_ram_bits``
-    capacity, ``lut_rams`` cells)."""
+def map_memory(spec) -> dict:
+    """The memory the map core holds (``design_memory_bits``): line buffers, input store and the column
+    sums of the line before, one word of W_S bits per padded-line cell and rectangle
+    (``docs/reference-core-2d.md``, Memory). What Yosys mapped it to is in the counts (``brams``, ``lutrams``
+    and their capacity ``memory_bits``, :func:`hdl_tb.synthesis.classify`)."""
     rects = sum(len(spec.stream_boxes(part)) for part in spec.parts)
     column_sums = rects * spec.padded_line * spec.sum_bits
-    return {"design_memory_bits": int(spec.line_buffer_bits + spec.store_bits + column_sums),
-            "block_rams": sum(n for name, n in cells.items() if name in BLOCK_RAMS),
-            "block_ram_bits": sum(n * BLOCK_RAMS[name] for name, n in cells.items() if name in BLOCK_RAMS),
-            "lut_rams": sum(n for name, n in cells.items() if name in LUT_RAMS)}
+    return {"design_memory_bits": int(spec.line_buffer_bits + spec.store_bits + column_sums)}
 
 
 def run(args: argparse.Namespace) -> int:
@@ -117,13 +108,12 @@ def run(args: argparse.Namespace) -> int:
         print(f"cfarvec synth: error: {str(exc).splitlines()[0]}", file=sys.stderr)
         return 1
     counts = report.summary()
-    memory = map_memory(spec, report.cells) if is_map_spec(spec) and not args.rtl else {}
+    memory = map_memory(spec) if is_map_spec(spec) and not args.rtl else {}
     if args.json:
         print(json.dumps({"spec": args.spec, "top": report.top, **counts, **memory, "cell_types": report.cells}))
     else:
         print(format_table(args.spec, counts, report.top))
         if memory:
-            print(f"  {'memory bits':<13}{memory['design_memory_bits']:>8}  (line buffers, input store, column sums)")
-            print(f"  {'block RAMs':<13}{memory['block_rams']:>8}  ({memory['block_ram_bits']} bits of capacity)")
-            print(f"  {'LUT RAMs':<13}{memory['lut_rams']:>8}")
+            print(f"  {'memory held':<13}{memory['design_memory_bits']:>8}  bits (line buffers, input store, "
+                  "column sums)")
     return 0

@@ -262,8 +262,9 @@ def write_vhdl_testbench(spec: BlockSpec, output: str | Path, *, rtl: Sequence[s
         ``check_ports`` and GHDL is installed). Nothing is written then.
     """
     from . import tb_generator as tb
+    from .core_params import is_map_spec
 
-    require("map" not in spec.sections, "map", "the VHDL benches take range-line (1D) specs only for now",
+    require(not is_map_spec(spec), "map", "the VHDL benches take range-line (1D) specs only for now",
             "a spec without a [map] section")
     pm = vhdl_port_map(spec, top)
     rtl_files = resolve_vhdl_rtl(rtl)

@@ -14,6 +14,7 @@ owners, so data still flows one way.
 
 from __future__ import annotations
 
+import datetime
 import math
 import tomllib
 from dataclasses import dataclass, field, replace
@@ -456,6 +457,27 @@ def spec_from_dict(data: Mapping[str, Any], source: str | None = None) -> BlockS
     return replace(spec, threshold_bits=w_t)
 
 
+def refuse_dates(data: Mapping) -> None:
+    """Refuse a TOML date, time or date-time anywhere in a spec: no field of any section takes one, and a
+    section a command does not check (``[ports]`` for ``vectors``) is still copied into the manifest.
+
+    Raises
+    ------
+    SpecError
+        Naming the first such field (``section.key``, array items by index).
+    """
+    stack = [(str(k), v) for k, v in data.items()]
+    while stack:  # an explicit stack: specs may nest deeper than the recursion limit
+        where, value = stack.pop()
+        if isinstance(value, (datetime.date, datetime.time)):  # datetime.datetime is a date
+            raise SpecError(where, f"is a TOML {type(value).__name__} ({value.isoformat()})",
+                            "a number, string, boolean, array or table")
+        if isinstance(value, dict):
+            stack.extend((f"{where}.{k}", v) for k, v in value.items())
+        elif isinstance(value, list):
+            stack.extend((f"{where}[{i}]", v) for i, v in enumerate(value))
+
+
 def load_spec(path: str | Path) -> BlockSpec:
     """Read and validate a block-spec TOML file.
 
@@ -476,6 +498,7 @@ def load_spec(path: str | Path) -> BlockSpec:
         raise SpecError("SPEC", f"{p.name} is not valid TOML ({exc})", "a TOML file") from None
     except RecursionError:
         raise SpecError("SPEC", f"{p.name} nests arrays or tables too deeply to read", "a TOML file") from None
+    refuse_dates(data)
     try:
         return spec_from_dict(data, source=str(p))
     except RecursionError:  # a deeply nested value echoed in an error

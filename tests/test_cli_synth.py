@@ -56,11 +56,12 @@ def test_generic_table_and_json_give_the_same_counts(tmp_path, capsys):
     assert cli.main(["synth", str(spec_path), "--json"]) == 0
     data = json.loads(capsys.readouterr().out)
     rows = dict(re.findall(r"^  (\S[\w -]*?)\s+(\d+)$", table, flags=re.MULTILINE))
-    assert set(rows) == {"LUTs", "flip-flops", "DSP blocks", "carries", "SRLs", "simple gates", "other",
-                         "total cells"}
+    assert set(rows) == {"LUTs", "flip-flops", "DSP blocks", "carries", "SRLs", "block RAMs", "LUT RAMs",
+                         "simple gates", "other", "total cells"}
     assert int(rows["total cells"]) == data["cells"] == sum(data["cell_types"].values())
     for label, key in (("LUTs", "luts"), ("flip-flops", "flip_flops"), ("DSP blocks", "dsps"),
-                       ("carries", "carries"), ("SRLs", "srls"), ("simple gates", "gates")):
+                       ("carries", "carries"), ("SRLs", "srls"), ("block RAMs", "brams"), ("LUT RAMs", "lutrams"),
+                       ("simple gates", "gates")):
         assert int(rows[label]) == data[key], label
     assert sum(int(v) for k, v in rows.items() if k != "total cells") == data["cells"]
     assert data["flow"] == "generic" and data["top"] == "cfar_stream"
