@@ -249,6 +249,18 @@ class PortMap:
         names.update({role: name for role, name in self.signals.items() if name is not None})
         return names
 
+    def adapter_connections(self) -> list[tuple[str, str]]:
+        """(module port, adapter wire) for every port the module has, as every port adapter (Verilog or VHDL,
+        1D or map) wires them: the inputs straight from the bench, the outputs to ``dut_*`` wires."""
+        sig = self.signals
+        wires = [(self.clock, "clk"), (self.reset, "dut_reset"), (sig["in_data"], "s_axis_tdata"),
+                 (sig["in_valid"], "s_axis_tvalid"), (sig["in_ready"], "s_axis_tready"),
+                 (sig["in_last"], "s_axis_tlast"), (sig.get("in_user"), "s_axis_tuser"),
+                 (sig["out_data"], "dut_out_data"), (sig["out_valid"], "m_axis_tvalid"),
+                 (sig["out_ready"], "m_axis_tready"), (sig["out_last"], "dut_out_last"),
+                 (sig.get("out_user"), "dut_out_user")]
+        return [(port, wire) for port, wire in wires if port is not None]
+
     def to_standard(self, word: int) -> int:
         """Rearrange one output word of the module into the standard layout."""
         out = 0

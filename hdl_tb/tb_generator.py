@@ -209,14 +209,7 @@ def adapter_source(pm: PortMap, bench: Mapping[str, int]) -> str:
         inner = ",\n".join(f"        .{k}({v})" for k, v in user.items())
         override = f"#(\n{inner}\n    ) "
     sig = pm.signals
-    conns = [(pm.clock, "clk"), (pm.reset, "dut_reset"),
-             (sig["in_data"], "s_axis_tdata"), (sig["in_valid"], "s_axis_tvalid"),
-             (sig["in_ready"], "s_axis_tready"), (sig["in_last"], "s_axis_tlast"),
-             (sig["out_data"], "dut_out_data"), (sig["out_valid"], "m_axis_tvalid"),
-             (sig["out_ready"], "m_axis_tready")]
-    if sig["out_last"] is not None:
-        conns.append((sig["out_last"], "dut_out_last"))
-    connections = ",\n".join(f"        .{port}({wire})" for port, wire in conns)
+    connections = ",\n".join(f"        .{port}({wire})" for port, wire in pm.adapter_connections())
     assigns = []
     for name, (lsb, width) in pm.out_fields.items():
         std_lsb, _ = pm.standard_fields[name]
@@ -259,13 +252,7 @@ def map_adapter_source(pm: PortMap, bench: Mapping[str, int]) -> str:
         inner = ",\n".join(f"        .{k}({v})" for k, v in user.items())
         override = f"#(\n{inner}\n    ) "
     sig = pm.signals
-    conns = [(pm.clock, "clk"), (pm.reset, "dut_reset"),
-             (sig["in_data"], "s_axis_tdata"), (sig["in_valid"], "s_axis_tvalid"),
-             (sig["in_ready"], "s_axis_tready"), (sig["in_last"], "s_axis_tlast"), (sig["in_user"], "s_axis_tuser"),
-             (sig["out_data"], "dut_out_data"), (sig["out_valid"], "m_axis_tvalid"),
-             (sig["out_ready"], "m_axis_tready"), (sig["out_last"], "dut_out_last"),
-             (sig["out_user"], "dut_out_user")]
-    connections = ",\n".join(f"        .{port}({wire})" for port, wire in conns if port is not None)
+    connections = ",\n".join(f"        .{port}({wire})" for port, wire in pm.adapter_connections())
     assigns = []
     for name, (lsb, width) in pm.out_fields.items():
         std_lsb, _ = pm.standard_fields[name]
