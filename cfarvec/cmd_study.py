@@ -120,12 +120,7 @@ def run(args: argparse.Namespace) -> int:
     out = check_safe_target(args.output, "--output", protect=[args.spec])
     check_target(out, args.force, "--output")
     require(args.workers is None or args.workers >= 1, "--workers", f"got {args.workers}", "an integer >= 1")
-    area = None if args.no_area else area_coster(args, cfg)
-    if area is not None and getattr(spec, "is_map", False):
-        # The study of a map block is that of its 1D arithmetic twin, whose core is not the map's.
-        print("cfarvec study: note: no reference core for map blocks yet, so no area; cheapest by word bits",
-              file=sys.stderr)
-        area = None
+    area = None if args.no_area else area_coster(args, cfg, spec)
     result = run_study(spec, cfg, workers=args.workers, scheduler=args.scheduler, progress=not args.no_progress,
                        area=area)
     write_report(result, out, force=args.force)
@@ -143,8 +138,9 @@ def run(args: argparse.Namespace) -> int:
     return 0
 
 
-def area_coster(args: argparse.Namespace, cfg):
-    """The area-costing callable handed to the study (:class:`hdl_tb.area_cost.AreaCoster`).
+def area_coster(args: argparse.Namespace, cfg, spec=None):
+    """The area-costing callable handed to the study (:class:`hdl_tb.area_cost.AreaCoster`, or
+    :class:`hdl_tb.area_cost.MapAreaCoster` on the map core for a map block ``spec``).
 
     Flow and weights come from ``cfg`` (``--area-flow`` / ``--area-weights``, else
     ``[study]`` ``area_flow`` / ``area_weights``).
@@ -156,12 +152,15 @@ def area_coster(args: argparse.Namespace, cfg):
     """
     import shutil
 
-    from hdl_tb.area_cost import AreaCoster, parse_weights
+    from hdl_tb.area_cost import AreaCoster, MapAreaCoster, parse_weights
     from refmodel.errors import SpecError
 
     weights = parse_weights(cfg.area_weights, field=cfg.fields["area_weights"])
     if shutil.which("yosys") is None:
         raise SpecError("--no-area", "yosys not found on PATH, so the area cannot be costed",
                         "Yosys installed (`make tools`), or --no-area")
-    return AreaCoster(flow=cfg.area_flow, weights=weights, cache_dir=args.area_cache,
-                      workers=args.workers, progress=not args.no_progress)
+    options = dict(flow=cfg.area_flow, weights=weights, cache_dir=args.area_cache, workers=args.workers,
+                   progress=not args.no_progress)
+    if getattr(spec, "is_map", False):
+        return MapAreaCoster(spec, **options)
+    return AreaCoster(**options)

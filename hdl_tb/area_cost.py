@@ -53,11 +53,11 @@ from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 from typing import Iterable, Mapping, Sequence
 
-from refmodel.block_spec import BlockSpec
+from refmodel.block_spec import BlockSpec, spec_from_dict
 from refmodel.errors import SpecError, require
 from refmodel.spec_fields import number
 
-from .core_params import CORE_SOURCES, CORE_TOP, core_parameters
+from .core_params import CORE_SOURCES, CORE_TOP, MAP_CORE_SOURCES, MAP_CORE_TOP, core_parameters
 from .synthesis import FLOWS, SynthesisError, find_yosys, synthesize
 
 __all__ = ["AREA_FLOWS", "AreaCoster", "DEFAULT_WEIGHTS", "default_cache_dir", "parse_weights", "weighted_area"]
@@ -258,3 +258,44 @@ class AreaCoster:
         """Flow, weights and cache folder, for reports."""
         return {"flow": self.flow, "flow_command": FLOWS[self.flow].format(top=self.top), "weights": dict(self.weights),
                 "cache_dir": str(self.cache_dir), "yosys": self._version}
+
+
+class MapAreaCoster:
+    """Area of a map block's study points, on the map core ``cfar_map``.
+
+    The study varies the arithmetic of a map block's 1D twin
+    (:func:`refmodel.map_spec.interior_twin`); each point's arithmetic
+    (``[fixed]``, the constant, the pipeline stages) is put back into the map
+    spec and that map block is costed by an :class:`AreaCoster` of the map
+    core. The map core derives its own sum width from the window, so a point's
+    ``sum_bits`` does not reach it.
+
+    Parameters
+    ----------
+    map_spec : refmodel.map_spec.MapSpec
+        The block under study.
+    **coster : optional
+        :class:`AreaCoster` options (flow, weights, cache folder, workers,
+        progress); sources and top are the map core's.
+    """
+
+    def __init__(self, map_spec, **coster):
+        self.map_spec = map_spec
+        self.coster = AreaCoster(sources=MAP_CORE_SOURCES, top=MAP_CORE_TOP, **coster)
+
+    def map_point(self, twin: BlockSpec):
+        """The map block with the arithmetic of one study point (its 1D twin ``twin``)."""
+        data = self.map_spec.to_dict(resolved=True)
+        det = dict(data["detector"])
+        det.pop("design_pfa", None)
+        det["alpha"] = twin.alpha
+        data["detector"] = det
+        data["fixed"] = {k: v for k, v in twin.to_dict(resolved=True)["fixed"].items() if k != "sum_bits"}
+        data["stream"] = {**data.get("stream", {}), "pipeline_stages": twin.pipeline_stages}
+        return spec_from_dict(data)
+
+    def __call__(self, specs: Iterable[BlockSpec]) -> list[dict]:
+        return self.coster.cost_many([self.map_point(s) for s in specs])
+
+    def describe(self) -> dict:
+        return self.coster.describe()

@@ -21,7 +21,7 @@ from refmodel.errors import SpecError
 
 pytestmark = pytest.mark.skipif(shutil.which("yosys") is None, reason="Yosys is not installed; run `make tools`")
 
-from hdl_tb.area_cost import DEFAULT_WEIGHTS, AreaCoster, parse_weights, weighted_area  # noqa: E402
+from hdl_tb.area_cost import DEFAULT_WEIGHTS, AreaCoster, MapAreaCoster, parse_weights, weighted_area  # noqa: E402
 from hdl_tb.core_params import CORE_SOURCES, core_parameters  # noqa: E402
 from hdl_tb.synthesis import synthesize  # noqa: E402
 
@@ -147,3 +147,26 @@ def test_systemverilog_files_are_read_as_systemverilog(tmp_path):
                    "  always_ff @(posedge clk) q <= d;\nendmodule\n", encoding="ascii")
     report = synthesize({}, "ice40", sources=[src], top="reg8")
     assert report.flip_flops == 8
+
+
+def test_a_map_block_is_costed_on_the_map_core(tmp_path, capsys):
+    """A map block's study point (its 1D arithmetic twin) is put back into the map spec and costed on cfar_map:
+    at the example's own arithmetic the area columns equal what `cfarvec synth` reports for the example."""
+    import json
+
+    from cfarvec.cli import main
+    from refmodel.block_spec import load_spec
+    from refmodel.map_spec import interior_twin
+
+    lagoon = ROOT / "examples" / "lagoon_map_ca.toml"
+    spec = load_spec(lagoon)
+    coster = MapAreaCoster(spec, flow="ice40", cache_dir=tmp_path / "cache", workers=1)
+    twin = interior_twin(spec)
+    assert coster.map_point(twin).to_dict(resolved=True) == spec.to_dict(resolved=True)
+    [row] = coster([twin])
+    assert main(["synth", str(lagoon), "--flow", "ice40", "--json"]) == 0
+    direct = json.loads(capsys.readouterr().out)
+    assert direct["top"] == "cfar_map"
+    for key in ("luts", "flip_flops", "carries", "brams", "memory_bits"):
+        assert row[f"area_{key}"] == direct[key], key
+    assert row["area_brams"] >= 1  # the line buffers are block RAM (the 1D twin's core has none)
