@@ -357,16 +357,29 @@ def test_the_alpha_the_summary_gives_for_a_retuned_point_rebuilds_its_constant()
     assert spec.alpha_int == r["alpha_int"] != r["alpha_int_rounded"]
 
 
-def test_map_block_gets_no_area_and_says_so(tmp_path, capsys):
-    """No reference core for map blocks yet: the study of its 1D twin must not cost the twin's core as its area."""
+def test_map_block_is_costed_on_the_map_core(tmp_path, capsys):
+    """The study of a map block runs on its 1D twin, but its area is the map core's, not the twin's core: the
+    point at the spec's own arithmetic costs what `cfarvec synth` reports for the spec (cfar_map)."""
+    import csv
+    import json
+
     p = tmp_path / "m.toml"
-    p.write_text("[detector]\nkind='ca'\ndesign_pfa=1e-3\n[fixed]\ninput_bits=10\n"
+    p.write_text("[detector]\nkind='ca'\ndesign_pfa=1e-3\n[fixed]\ninput_bits=10\nalpha_frac_bits=12\n"
                  "[map]\nrange_cells=32\ndoppler_bins=16\nref_range=2\nref_doppler=1\nguard_range=1\n"
                  "[study]\nmc_trials=0\nsnr_db=[13]\nswerling=[1]\nconstant='rounded'\n", encoding="utf-8")
-    code, _, err = _run(capsys, ["study", str(p), "-o", str(tmp_path / "st"), "--workers", "1", "--no-progress"])
-    assert code == 0 and "no reference core for map blocks yet" in err
-    text = (tmp_path / "st" / "summary.md").read_text()
-    assert "(area not costed)" in text and "area_luteq" not in (tmp_path / "st" / "points.csv").read_text()
+    code, _, err = _run(capsys, ["study", str(p), "-o", str(tmp_path / "st"), "--workers", "1", "--no-progress",
+                                 "--input-bits", "10", "--alpha-frac-bits", "12", "--area-cache",
+                                 str(tmp_path / "cache")])
+    assert code == 0, err
+    rows = list(csv.DictReader((tmp_path / "st" / "points.csv").open()))
+    own = [r for r in rows if r["threshold_frac_bits"] == "0" and r["rounding"] == "half-up"]
+    assert own, rows
+    code, out, err = _run(capsys, ["synth", str(p), "--flow", "ice40", "--json"])
+    assert code == 0, err
+    direct = json.loads(out)
+    assert direct["top"] == "cfar_map"
+    for key in ("luts", "flip_flops", "carries", "brams", "memory_bits"):
+        assert int(own[0][f"area_{key}"]) == direct[key], key
 
 
 def test_issue14_plots_integer_ticks_legend_outside_ratio_axis(tmp_path, monkeypatch):
