@@ -197,8 +197,9 @@ def _bits(lsb: int, width: int) -> str:
     return f"[{lsb}]" if width == 1 else f"[{lsb + width - 1}:{lsb}]"
 
 
-def adapter_source(pm: PortMap, bench: Mapping[str, int]) -> str:
-    """``cfarvec_port_adapter.v``: the module under test behind the reference core's interface."""
+def _adapter_parts(pm: PortMap, bench: Mapping[str, int]) -> tuple[str, str, list[str]]:
+    """What the 1D and the map Verilog adapters share: the module's parameter override, its port
+    connections and the assigns that move its output fields into the standard layout."""
     user = {}
     if pm.core_parameters:
         user.update({name: name for name in bench})
@@ -208,13 +209,19 @@ def adapter_source(pm: PortMap, bench: Mapping[str, int]) -> str:
     if user:
         inner = ",\n".join(f"        .{k}({v})" for k, v in user.items())
         override = f"#(\n{inner}\n    ) "
-    sig = pm.signals
     connections = ",\n".join(f"        .{port}({wire})" for port, wire in pm.adapter_connections())
     assigns = []
     for name, (lsb, width) in pm.out_fields.items():
         std_lsb, _ = pm.standard_fields[name]
         assigns.append(f"    // {name}")
         assigns.append(f"    assign m_axis_tdata{_bits(std_lsb, width)} = dut_out_data{_bits(lsb, width)};")
+    return override, connections, assigns
+
+
+def adapter_source(pm: PortMap, bench: Mapping[str, int]) -> str:
+    """``cfarvec_port_adapter.v``: the module under test behind the reference core's interface."""
+    override, connections, assigns = _adapter_parts(pm, bench)
+    sig = pm.signals
     last_lsb = pm.out_fields["last"][0]
     if sig["out_last"] is not None:
         assigns.append("    // The module's own last output.")
@@ -242,22 +249,8 @@ def bulk_top_source(bench: Mapping[str, int], max_words: int) -> str:
 
 def map_adapter_source(pm: PortMap, bench: Mapping[str, int]) -> str:
     """``cfarvec_port_adapter.v`` of a map block: the module under test behind ``cfar_map``'s interface."""
-    user = {}
-    if pm.core_parameters:
-        user.update({name: name for name in bench})
-        user["SRST_LEVEL"] = "1" if pm.reset_active_high else "0"
-    user.update({k: verilog_literal(v) for k, v in pm.parameters.items()})
-    override = ""
-    if user:
-        inner = ",\n".join(f"        .{k}({v})" for k, v in user.items())
-        override = f"#(\n{inner}\n    ) "
+    override, connections, assigns = _adapter_parts(pm, bench)
     sig = pm.signals
-    connections = ",\n".join(f"        .{port}({wire})" for port, wire in pm.adapter_connections())
-    assigns = []
-    for name, (lsb, width) in pm.out_fields.items():
-        std_lsb, _ = pm.standard_fields[name]
-        assigns.append(f"    // {name}")
-        assigns.append(f"    assign m_axis_tdata{_bits(std_lsb, width)} = dut_out_data{_bits(lsb, width)};")
     extra = []
     for role, port, made in (("out_last", "m_axis_tlast", "(out_j_reg == LF - 1)"),
                              ("out_user", "m_axis_tuser", "out_first_reg")):
